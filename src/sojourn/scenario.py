@@ -1,0 +1,369 @@
+"""Scenario files: YAML (safe loader only) → a validated, immutable Scenario.
+
+Every error is a ScenarioError whose message names the file, the line, the key
+path and what was expected, e.g.
+``step.yaml:12: packet.width: must be > 0 (got -3)``.
+"""
+from __future__ import annotations
+
+import difflib
+import math
+from pathlib import Path
+from typing import Annotated, Any, Literal, Optional, Union
+
+import yaml
+from pydantic import (BaseModel, BeforeValidator, ConfigDict, Discriminator, Field, Tag,
+                      ValidationError, create_model, field_validator, model_validator)
+
+from . import potentials as pot
+from .units import UnitSystem, get as get_units
+
+
+class SojournError(Exception):
+    """Base of the tool's own errors: the message is for the user."""
+
+
+class ScenarioError(SojournError):
+    """A scenario (or sweep) file that cannot be used, with file:line: key: why."""
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class GridSpec(_Strict):
+    span: tuple[float, float]
+    points: int = Field(ge=16, description="number of grid points")
+
+    @field_validator("span")
+    @classmethod
+    def _ordered(cls, span):
+        if not all(math.isfinite(v) for v in span):
+            raise ValueError("must be two finite numbers [left, right]")
+        if span[1] <= span[0]:
+            raise ValueError(f"right end must exceed left end (got [{span[0]}, {span[1]}])")
+        return span
+
+    @property
+    def dx(self) -> float:
+        return (self.span[1] - self.span[0]) / self.points
+
+
+class PacketSpec(_Strict):
+    shape: Literal["gaussian"] = "gaussian"
+    center: float
+    width: float = Field(gt=0, description="rms width of |psi|^2")
+    energy: Optional[float] = Field(default=None, gt=0)
+    wavenumber: Optional[float] = None
+    direction: Literal["right", "left"] = "right"
+
+    @model_validator(mode="after")
+    def _one_of(self):
+        if (self.energy is None) == (self.wavenumber is None):
+            raise ValueError("give exactly one of energy or wavenumber")
+        return self
+
+
+class EvolveSpec(_Strict):
+    duration: float = Field(gt=0)
+    dt: Optional[float] = Field(default=None, gt=0)
+    scheme: Literal["strang", "yoshida4"] = "strang"
+    precision: Literal["double", "single"] = "double"
+
+
+class AbsorberSpec(_Strict):
+    width: float = Field(gt=0)
+    strength: Optional[float] = Field(default=None, gt=0, description="peak W (energy units)")
+
+
+class RecordSpec(_Strict):
+    every: Optional[float] = Field(default=None, gt=0)
+    output: Optional[str] = None
+    compress: bool = False
+    sample_steps: int = Field(default=1, ge=1, le=1000,
+                              description="steps between flux/region samples")
+
+
+class MeasureSpec(_Strict):
+    reference: Optional[float] = None
+    detectors: Optional[list[float]] = None
+    region: Optional[tuple[float, float]] = None
+
+
+def _term_kind(value: Any) -> Optional[str]:
+    if isinstance(value, dict) and len(value) == 1:
+        key = next(iter(value))
+        return key if key in pot.TERMS else None
+    return None
+
+
+def _formula_to_term(value):
+    return {"formula": value} if isinstance(value, str) else value
+
+
+def _item_model(kind: str, cls: type[pot.Term]):
+    """A one-key mapping {kind: parameters}; an expression may be a bare formula."""
+    field = Annotated[cls, BeforeValidator(_formula_to_term)] if kind == "expression" else cls
+    model = create_model(f"{cls.__name__}Item", __base__=_Strict, **{kind: (field, ...)})
+    return Annotated[model, Tag(kind)]
+
+
+TermItem = Annotated[Union[tuple(_item_model(k, c) for k, c in pot.TERMS.items())],
+                     Discriminator(_term_kind)]
+
+
+class Scenario(_Strict):
+    """A validated scenario. Numbers are in the scenario's own units."""
+
+    title: str = "untitled scenario"
+    units: Literal["lab", "atomic"] = "atomic"
+    mass: float = Field(default=1.0, gt=0)
+    grid: GridSpec
+    potential: list[TermItem] = []
+    packet: PacketSpec
+    evolve: EvolveSpec
+    absorber: Optional[AbsorberSpec] = None
+    record: RecordSpec = RecordSpec()
+    measure: MeasureSpec = MeasureSpec()
+
+    # Filled in by load(): where it came from, for messages and relative paths.
+    source: Optional[str] = Field(default=None, exclude=True)
+    text: Optional[str] = Field(default=None, exclude=True)
+
+    @property
+    def unit_system(self) -> UnitSystem:
+        return get_units(self.units)
+
+    @property
+    def hbar(self) -> float:
+        return self.unit_system.hbar
+
+    @property
+    def particle_mass(self) -> float:
+        """The mass in the scenario's units (energy·time²/length²)."""
+        return self.mass * self.unit_system.electron_mass
+
+    @property
+    def terms(self) -> list[pot.Term]:
+        return [getattr(item, next(iter(type(item).model_fields))) for item in self.potential]
+
+    def build_potential(self) -> pot.Potential:
+        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.span)
+
+    @property
+    def name(self) -> str:
+        return Path(self.source).stem if self.source else "scenario"
+
+
+# ----------------------------------------------------------------------------------------
+# Loading with line numbers
+
+
+class _LineLoader(yaml.SafeLoader):
+    """Safe loader that remembers the line of every key and list item."""
+
+
+def _compose_lines(node, path, lines):
+    lines.setdefault(path, node.start_mark.line + 1)
+    if isinstance(node, yaml.MappingNode):
+        for key_node, value_node in node.value:
+            key = key_node.value
+            lines[path + (key,)] = key_node.start_mark.line + 1
+            _compose_lines(value_node, path + (key,), lines)
+    elif isinstance(node, yaml.SequenceNode):
+        for i, item in enumerate(node.value):
+            lines[path + (i,)] = item.start_mark.line + 1
+            _compose_lines(item, path + (i,), lines)
+
+
+def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
+    """YAML text → (plain data, {key path: line}). Safe loader only."""
+    try:
+        node = yaml.compose(text, Loader=_LineLoader)
+        data = yaml.load(text, Loader=yaml.SafeLoader)
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        line = mark.line + 1 if mark else 1
+        raise ScenarioError(f"{source}:{line}: not valid YAML: {exc.problem or exc}") from None
+    except yaml.YAMLError as exc:
+        raise ScenarioError(f"{source}:1: not valid YAML: {exc}") from None
+    except (RecursionError, MemoryError):
+        raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
+    lines: dict = {}
+    if node is not None:
+        _compose_lines(node, (), lines)
+    return data, lines
+
+
+def format_path(loc) -> str:
+    out = ""
+    for part in loc:
+        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
+    return out or "(top level)"
+
+
+def _clean_loc(loc: tuple, data: Any) -> tuple:
+    """Drop pydantic's union tags and wrapper names so that loc follows the YAML."""
+    out, node = [], data
+    parts = list(loc)
+    i = 0
+    while i < len(parts):
+        part = parts[i]
+        if isinstance(node, dict) and part in node:
+            out.append(part)
+            node = node[part]
+        elif isinstance(node, list) and isinstance(part, int) and part < len(node):
+            out.append(part)
+            node = node[part]
+        elif isinstance(node, (dict, list)) or node is None:
+            # a tag or model name pydantic inserted, or a key that is missing
+            if not (isinstance(part, str) and (part in pot.TERMS or part[:1].isupper()
+                                               or part in ("str", "function-after"))):
+                out.append(part)
+                node = None
+        i += 1
+    return tuple(out)
+
+
+def _line_for(loc: tuple, lines: dict) -> int:
+    for n in range(len(loc), -1, -1):
+        if loc[:n] in lines:
+            return lines[loc[:n]]
+    return 1
+
+
+def _model_at(loc: tuple):
+    """The pydantic model class that owns the last key of loc (for suggestions)."""
+    model: Any = Scenario
+    for part in loc[:-1]:
+        if isinstance(part, int) or model is None:
+            continue
+        if model is Scenario and part == "potential":
+            model = "potential"
+            continue
+        if model == "potential":
+            model = pot.TERMS.get(part)
+            continue
+        field = model.model_fields.get(part)
+        if field is None:
+            return None
+        ann = field.annotation
+        model = next((a for a in getattr(ann, "__args__", (ann,))
+                      if isinstance(a, type) and issubclass(a, BaseModel)), None)
+    return model
+
+
+def _describe(error: dict, loc: tuple) -> str:
+    kind, ctx = error["type"], error.get("ctx") or {}
+    got = error.get("input")
+    shown = repr(got) if isinstance(got, str) else got
+    if kind == "extra_forbidden":
+        model = _model_at(loc)
+        valid = list(model.model_fields) if model is not None else []
+        valid = [v for v in valid if v not in ("source", "text")]
+        close = difflib.get_close_matches(str(loc[-1]), valid, n=1)
+        hint = f"; did you mean '{close[0]}'?" if close else (
+            f"; valid keys: {', '.join(valid)}" if valid else "")
+        return f"unknown key{hint}"
+    if kind == "missing":
+        return "required key is missing"
+    if kind == "union_tag_invalid" or kind == "union_tag_not_found":
+        names = ", ".join(pot.TERMS)
+        if isinstance(got, dict) and len(got) == 1:
+            close = difflib.get_close_matches(next(iter(got)), list(pot.TERMS), n=1)
+            hint = f"; did you mean '{close[0]}'?" if close else ""
+            return f"unknown potential term '{next(iter(got))}'{hint} (known: {names})"
+        return f"each potential term is a one-key mapping like 'step: {{...}}' (known: {names})"
+    if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
+        op = {"greater_than": ">", "greater_than_equal": ">=", "less_than": "<",
+              "less_than_equal": "<="}[kind]
+        bound = next(iter(ctx.values()), "")
+        return f"must be {op} {bound} (got {shown})"
+    if kind == "literal_error":
+        return f"must be one of {ctx.get('expected', '')} (got {shown})"
+    if kind in ("float_parsing", "float_type", "int_parsing", "int_type", "int_from_float",
+                "finite_number"):
+        what = "a whole number" if kind.startswith("int") else "a number"
+        return f"must be {what} (got {shown})"
+    if kind in ("model_type", "model_attributes_type", "dict_type"):
+        return f"must be a mapping of keys (got {shown})"
+    if kind in ("list_type", "tuple_type"):
+        return f"must be a list (got {shown})"
+    if kind in ("too_short", "too_long"):
+        return f"wrong number of items (got {shown})"
+    if kind == "string_type":
+        return f"must be text (got {shown})"
+    if kind == "bool_type" or kind == "bool_parsing":
+        return f"must be true or false (got {shown})"
+    message = error.get("msg", "invalid value")
+    return message.removeprefix("Value error, ").removeprefix("Assertion failed, ")
+
+
+def validate(data: Any, source: str = "<scenario>", lines: Optional[dict] = None,
+             base_dir: Optional[Path] = None, text: Optional[str] = None) -> Scenario:
+    """Plain data → Scenario, or a ScenarioError naming file, line and key."""
+    lines = lines or {}
+    if not isinstance(data, dict):
+        raise ScenarioError(f"{source}:1: a scenario must be a mapping of keys "
+                            f"(title, units, grid, potential, packet, evolve, ...)")
+    context = {"base_dir": str(base_dir or Path("."))}
+    try:
+        scenario = Scenario.model_validate({**data, "source": source, "text": text}, context=context)
+    except ValidationError as exc:
+        errors = exc.errors()
+        # a misspelt key shows up as "missing" and "unknown": name the unknown one
+        error = next((e for e in errors if e["type"] == "extra_forbidden"), errors[0])
+        loc = _clean_loc(tuple(error["loc"]), data)
+        raise ScenarioError(f"{source}:{_line_for(loc, lines)}: {format_path(loc)}: "
+                            f"{_describe(error, loc)}") from None
+    except (ValueError, TypeError, OSError) as exc:   # raised while reading a table file
+        raise ScenarioError(f"{source}:1: {exc}") from None
+    return scenario
+
+
+def loads(text: str, source: str = "<scenario>", base_dir: Optional[Path] = None) -> Scenario:
+    """Scenario from YAML text."""
+    data, lines = parse_yaml(text, source)
+    return validate(data, source, lines, base_dir, text)
+
+
+def load(path) -> Scenario:
+    """Scenario from a YAML file; relative paths in it resolve against its folder."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ScenarioError(f"{path}: cannot read the scenario file ({exc.__class__.__name__}: "
+                            f"{getattr(exc, 'strerror', None) or exc})") from None
+    return loads(text, str(path), path.parent)
+
+
+def with_changes(scenario: Scenario, changes: dict) -> Scenario:
+    """A copy of a scenario with dotted-path values replaced, validated again
+    (used by sweeps and convergence checks)."""
+    data, lines = parse_yaml(scenario.text, scenario.source or "<scenario>") if scenario.text \
+        else (scenario.model_dump(mode="json", exclude_none=True), {})
+    for dotted, value in changes.items():
+        set_path(data, dotted, value)
+    base = Path(scenario.source).parent if scenario.source else None
+    return validate(data, scenario.source or "<scenario>", lines, base,
+                    yaml.safe_dump(data, sort_keys=False))
+
+
+def set_path(data: dict, dotted: str, value: Any) -> None:
+    """Set data[a][b][c] = value for 'a.b.c' (list indexes as numbers: potential.0.step.height)."""
+    parts = [int(p) if p.isdigit() else p for p in dotted.split(".")]
+    node = data
+    for part in parts[:-1]:
+        if isinstance(node, dict):
+            node = node.setdefault(part, {})
+        elif isinstance(node, list) and isinstance(part, int) and part < len(node):
+            node = node[part]
+        else:
+            raise KeyError(dotted)
+    if isinstance(node, list) and isinstance(parts[-1], int) and parts[-1] < len(node):
+        node[parts[-1]] = value
+    elif isinstance(node, dict):
+        node[parts[-1]] = value
+    else:
+        raise KeyError(dotted)
