@@ -1,0 +1,96 @@
+"""Observables of a state on the grid: norm, moments, energy, region
+probabilities and the probability current at detectors."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+STENCIL_HALF_WIDTH = 8  # 16-point stencils: error ~ (kΔx)^16, negligible for resolved packets
+
+
+def fornberg_weights(z: float, nodes: np.ndarray, order: int) -> np.ndarray:
+    """Finite-difference weights at point z on arbitrary nodes, for derivatives
+    0..order (B. Fornberg, Math. Comp. 51, 699 (1988)). Returns (order+1, len(nodes))."""
+    n = len(nodes)
+    c = np.zeros((order + 1, n))
+    c1, c4 = 1.0, nodes[0] - z
+    c[0, 0] = 1.0
+    for i in range(1, n):
+        mn = min(i, order)
+        c2, c5, c4 = 1.0, c4, nodes[i] - z
+        for j in range(i):
+            c3 = nodes[i] - nodes[j]
+            c2 *= c3
+            if j == i - 1:
+                for k in range(mn, 0, -1):
+                    c[k, i] = c1 * (k * c[k - 1, i - 1] - c5 * c[k, i - 1]) / c2
+                c[0, i] = -c1 * c5 * c[0, i - 1] / c2
+            for k in range(mn, 0, -1):
+                c[k, j] = (c4 * c[k, j] - k * c[k - 1, j]) / c3
+            c[0, j] = c4 * c[0, j] / c3
+        c1 = c2
+    return c
+
+
+class Detectors:
+    """Probability current J = (ħ/m) Im(ψ* ∂ψ/∂x) at fixed positions, from
+    local 16-point interpolation stencils (no FFT, O(1) per detector)."""
+
+    def __init__(self, grid, positions, hbar: float, mass: float):
+        self.positions = np.asarray(list(positions), dtype=float)
+        self.factor = hbar / mass
+        m = STENCIL_HALF_WIDTH
+        starts, value_w, slope_w = [], [], []
+        for z in self.positions:
+            centre = int(math.floor((z - grid.left) / grid.dx))
+            start = min(max(centre - m + 1, 0), grid.points - 2 * m)
+            nodes = grid.left + grid.dx * np.arange(start, start + 2 * m)
+            w = fornberg_weights(z, nodes, 1)
+            starts.append(start)
+            value_w.append(w[0])
+            slope_w.append(w[1])
+        self._slices = [slice(s, s + 2 * m) for s in starts]
+        self._value = [np.asarray(w) for w in value_w]
+        self._slope = [np.asarray(w) for w in slope_w]
+
+    def __len__(self) -> int:
+        return len(self.positions)
+
+    def flux(self, psi: np.ndarray) -> np.ndarray:
+        out = np.empty(len(self.positions))
+        for i, (sl, wv, ws) in enumerate(zip(self._slices, self._value, self._slope)):
+            local = psi[sl]
+            value = np.dot(wv, local)
+            slope = np.dot(ws, local)
+            out[i] = self.factor * (value.conjugate() * slope).imag
+        return out
+
+
+def norm(psi, dx) -> float:
+    return float(np.vdot(psi, psi).real * dx)
+
+
+def probability(psi, dx, index_slice: slice) -> float:
+    part = psi[index_slice]
+    return float(np.vdot(part, part).real * dx)
+
+
+def moments(psi: np.ndarray, grid, V: np.ndarray, hbar: float, mass: float) -> dict:
+    """norm, ⟨x⟩, ⟨p⟩ and ⟨H⟩ (kinetic spectrally, potential on the grid),
+    the expectation values normalised by the norm."""
+    density = np.abs(psi) ** 2
+    total = float(density.sum() * grid.dx)
+    if total <= 0:
+        return {"norm": 0.0, "x_mean": 0.0, "p_mean": 0.0, "energy": 0.0}
+    amplitude = np.fft.fft(psi)
+    weights = np.abs(amplitude) ** 2
+    weights_total = float(weights.sum())
+    k = grid.k
+    return {
+        "norm": total,
+        "x_mean": float((density * grid.x).sum() * grid.dx / total),
+        "p_mean": float(hbar * (weights * k).sum() / weights_total),
+        "energy": float((hbar ** 2 * (weights * k ** 2).sum() / (2 * mass)) / weights_total
+                        + (density * V).sum() * grid.dx / total),
+    }

@@ -1,0 +1,362 @@
+"""The run file: one self-describing HDF5 file per run (layout in DESIGN.md).
+
+The writer works on NAME.h5.partial in HDF5's single-writer/multiple-reader
+mode, flushes at every snapshot together with a checkpoint of the full state,
+and renames to NAME.h5 when the run is complete. A result is never
+overwritten unless asked.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+import platform
+import sys
+from pathlib import Path
+from typing import Optional
+
+import h5py
+import numpy as np
+
+from . import __version__
+from .scenario import SojournError, loads as load_scenario_text
+
+FORMAT = "sojourn.run"
+FORMAT_VERSION = 1
+OBSERVABLES = ("norm", "x_mean", "p_mean", "energy", "P_left", "P_right", "P_region",
+               "absorbed_left", "absorbed_right")
+SAMPLES = ("norm", "P_region", "absorbed_left", "absorbed_right")
+
+
+class RunFileError(SojournError):
+    """A run file that cannot be written or read as asked."""
+
+
+def partial_path(path: Path) -> Path:
+    return path.with_name(path.name + ".partial")
+
+
+def provenance(backend: str) -> dict:
+    import scipy
+    cpu = platform.processor() or platform.machine()
+    try:
+        with open("/proc/cpuinfo") as handle:
+            cpu = next(line.split(":", 1)[1].strip() for line in handle
+                       if line.startswith("model name"))
+    except (OSError, StopIteration):
+        pass
+    return {"python": sys.version.split()[0], "numpy": np.__version__, "scipy": scipy.__version__,
+            "h5py": h5py.__version__, "hdf5": h5py.version.hdf5_version, "fft": backend,
+            "cpu": cpu, "cores": os.cpu_count(), "platform": platform.platform()}
+
+
+def _resizable(group, name, shape_tail=(), dtype="f8"):
+    """An empty dataset that grows along its first axis."""
+    rows = max(1, 4096 // max(1, int(np.prod(shape_tail))))
+    return group.create_dataset(name, shape=(0, *shape_tail), maxshape=(None, *shape_tail),
+                                chunks=(rows, *shape_tail), dtype=dtype)
+
+
+def _append(dataset, values) -> None:
+    values = np.asarray(values)
+    if values.ndim == len(dataset.shape) - 1:
+        values = values[None]
+    n = dataset.shape[0]
+    dataset.resize(n + len(values), axis=0)
+    dataset[n:] = values
+
+
+class RunWriter:
+    """Writes one run. Use `open_new` or `open_resume`, then `snapshot(...)`
+    per recording and `finish()` (or `close(status)` on interruption)."""
+
+    def __init__(self, handle: h5py.File, final: Path):
+        self.h5 = handle
+        self.final = final
+        self.partial = Path(handle.filename)
+
+    # -- creation ------------------------------------------------------------------------
+    @classmethod
+    def open_new(cls, final: Path, setup, backend: str, overwrite: bool = False,
+                 compress: bool = False) -> "RunWriter":
+        final = Path(final)
+        partial = partial_path(final)
+        if final.exists() and not overwrite:
+            raise RunFileError(f"{final} exists; a result is never overwritten "
+                               "(use --overwrite to replace it, or -o for another name)")
+        if partial.exists() and not overwrite:
+            raise RunFileError(f"{partial} holds an unfinished run; continue it with --resume "
+                               "or start again with --overwrite")
+        try:
+            final.parent.mkdir(parents=True, exist_ok=True)
+            handle = h5py.File(partial, "w", libver="latest")
+        except (OSError, BlockingIOError) as exc:
+            raise RunFileError(f"cannot create {partial}: {exc}") from None
+        try:
+            cls._layout(handle, setup, backend, compress)
+            handle.swmr_mode = True
+        except Exception:
+            handle.close()
+            raise
+        return cls(handle, final)
+
+    @staticmethod
+    def _layout(f: h5py.File, s, backend: str, compress: bool) -> None:
+        sc = s.scenario
+        units = sc.unit_system.as_dict()
+        f.attrs.update({
+            "format": FORMAT, "format_version": FORMAT_VERSION, "sojourn_version": __version__,
+            "status": "running", "created": _dt.datetime.now(_dt.timezone.utc).isoformat(),
+            "scenario": sc.text or "", "scenario_source": sc.source or "",
+            "title": sc.title, "units": json.dumps(units),
+            "provenance": json.dumps(provenance(backend)),
+            "dt": s.dt, "steps": s.steps, "record_steps": s.record_steps,
+            "sample_steps": s.sample_steps, "scheme": sc.evolve.scheme,
+            "precision": sc.evolve.precision, "hbar": s.hbar, "mass": s.mass,
+            "reference": s.reference, "packet": json.dumps(s.packet.__dict__),
+        })
+        n = s.grid.points
+        grid = f.create_group("grid")
+        x = grid.create_dataset("x", data=s.grid.x)
+        x.attrs.update({"units": sc.unit_system.length, "dx": s.grid.dx})
+        x.make_scale("x")
+        pot = f.create_group("potential")
+        pot.create_dataset("V", data=s.V).attrs["units"] = sc.unit_system.energy
+        pot["V"].dims[0].attach_scale(x)
+        pot.attrs["description"] = s.potential.describe()
+        if s.W is not None:
+            pot.create_dataset("absorber", data=s.W).attrs["units"] = sc.unit_system.energy
+            pot["absorber"].dims[0].attach_scale(x)
+        snaps = f.create_group("snapshots")
+        t = _resizable(snaps, "t")
+        t.attrs["units"] = sc.unit_system.time
+        t.make_scale("t")
+        _resizable(snaps, "step", dtype="i8")
+        dtype = "c8" if sc.evolve.precision == "single" else "c16"
+        psi = snaps.create_dataset("psi", shape=(0, n), maxshape=(None, n), chunks=(1, n),
+                                   dtype=dtype, **({"compression": "gzip", "compression_opts": 4,
+                                                    "shuffle": True} if compress else {}))
+        psi.dims[0].attach_scale(t)
+        psi.dims[1].attach_scale(x)
+        obs = f.create_group("observables")
+        ot = _resizable(obs, "t")
+        ot.attrs["units"] = sc.unit_system.time
+        for name in OBSERVABLES:
+            _resizable(obs, name)
+        obs.attrs["region"] = np.array(s.region if s.region else (np.nan, np.nan))
+        obs.attrs["reference"] = s.reference
+        samples = obs.create_group("samples")
+        _resizable(samples, "t").attrs["units"] = sc.unit_system.time
+        for name in SAMPLES:
+            _resizable(samples, name)
+        nd = max(len(s.detectors), 1)
+        _resizable(samples, "flux", (nd,))
+        samples.attrs["detectors"] = np.array(s.detectors, dtype=float)
+        ck = f.create_group("checkpoint")
+        ck.create_dataset("psi", shape=(n,), dtype=dtype)
+        # step, t, snapshots written, samples written, raw absorbed left, raw absorbed right
+        ck.create_dataset("info", shape=(6,), dtype="f8", data=np.full(6, -1.0))
+
+    # -- resuming ------------------------------------------------------------------------
+    @classmethod
+    def open_resume(cls, final: Path, scenario_text: str) -> tuple["RunWriter", dict]:
+        final = Path(final)
+        partial = partial_path(final)
+        if not partial.exists():
+            raise RunFileError(f"nothing to resume: {partial} does not exist")
+        try:
+            handle = h5py.File(partial, "r+", libver="latest")
+        except OSError as exc:
+            raise RunFileError(f"cannot reopen {partial} to resume it: {exc}") from None
+        try:
+            if handle.attrs.get("format") != FORMAT:
+                raise RunFileError(f"{partial} is not a sojourn run file")
+            if (handle.attrs.get("scenario") or "") != (scenario_text or ""):
+                raise RunFileError(f"{partial} was started from a different scenario text; "
+                                   "it cannot be resumed with this one")
+            info = handle["checkpoint/info"][...]
+            if info[0] < 0:
+                raise RunFileError(f"{partial} holds no checkpoint yet; start again with --overwrite")
+            step, t, n_snap, n_samp, raw_l, raw_r = info
+            state = {"step": int(step), "t": float(t), "psi": handle["checkpoint/psi"][...],
+                     "raw_absorbed": (float(raw_l), float(raw_r))}
+            # drop anything written after the checkpoint
+            for name in ("t", "step", "psi"):
+                handle["snapshots"][name].resize(int(n_snap), axis=0)
+            for name in ("t",) + OBSERVABLES:
+                handle["observables"][name].resize(int(n_snap), axis=0)
+            for name in ("t", "flux") + SAMPLES:
+                handle["observables/samples"][name].resize(int(n_samp), axis=0)
+            handle.attrs["status"] = "running"
+            handle.swmr_mode = True
+        except Exception:
+            handle.close()
+            raise
+        return cls(handle, final), state
+
+    # -- writing -------------------------------------------------------------------------
+    def snapshot(self, step: int, t: float, psi: np.ndarray, observables: dict,
+                 samples: dict, raw_absorbed: tuple[float, float]) -> None:
+        """Append a snapshot, its observables and the samples since the last one,
+        update the checkpoint, and flush."""
+        f = self.h5
+        try:
+            _append(f["snapshots/t"], t)
+            _append(f["snapshots/step"], step)
+            _append(f["snapshots/psi"], psi)
+            _append(f["observables/t"], t)
+            for name in OBSERVABLES:
+                _append(f["observables"][name], observables[name])
+            smp = f["observables/samples"]
+            if len(samples["t"]):
+                _append(smp["t"], samples["t"])
+                _append(smp["flux"], samples["flux"])
+                for name in SAMPLES:
+                    _append(smp[name], samples[name])
+            f["checkpoint/psi"][...] = psi
+            f["checkpoint/info"][...] = [step, t, f["snapshots/t"].shape[0], smp["t"].shape[0],
+                                         raw_absorbed[0], raw_absorbed[1]]
+            f.flush()
+        except OSError as exc:
+            self.close("failed")
+            raise RunFileError(f"writing {self.partial} failed ({exc}); what was written before "
+                               "is kept") from None
+
+    def close(self, status: str) -> None:
+        """Close with a status (interrupted, failed); the .partial file stays."""
+        if self.h5.id.valid:
+            try:
+                self.h5.attrs["status"] = status
+                self.h5.flush()
+            finally:
+                self.h5.close()
+
+    def finish(self) -> Path:
+        """Mark complete, close, and rename NAME.h5.partial → NAME.h5."""
+        self.h5.attrs["status"] = "complete"
+        self.h5.attrs["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat()
+        self.h5.close()
+        os.replace(self.partial, self.final)
+        return self.final
+
+
+class RunFile:
+    """Read access to a run file (complete or partial). Snapshots are read one
+    at a time, so files larger than memory can be processed."""
+
+    def __init__(self, path):
+        self.path = Path(path)
+        if not self.path.exists():
+            raise RunFileError(f"{self.path}: no such file")
+        try:
+            self.h5 = h5py.File(self.path, "r", swmr=True)
+        except OSError as exc:
+            try:
+                self.h5 = h5py.File(self.path, "r")
+            except OSError:
+                kind = "not an HDF5 file" if not h5py.is_hdf5(self.path) else \
+                    "a damaged or truncated HDF5 file"
+                raise RunFileError(f"{self.path}: cannot read it as a run file ({kind}: "
+                                   f"{exc})") from None
+        attrs = self.h5.attrs
+        if attrs.get("format") != FORMAT:
+            self.h5.close()
+            raise RunFileError(f"{self.path}: an HDF5 file, but not a sojourn run file "
+                               "(no format='sojourn.run')")
+        version = int(attrs.get("format_version", 0))
+        if version > FORMAT_VERSION:
+            self.h5.close()
+            raise RunFileError(f"{self.path}: run file format version {version} is newer than "
+                               f"this sojourn understands ({FORMAT_VERSION}); upgrade sojourn")
+        try:
+            for name in ("grid/x", "potential/V", "snapshots/t", "snapshots/psi", "observables/t"):
+                self.h5[name]
+        except KeyError as exc:
+            self.h5.close()
+            raise RunFileError(f"{self.path}: damaged run file (missing {exc})") from None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    def close(self) -> None:
+        if self.h5.id.valid:
+            self.h5.close()
+
+    @property
+    def attrs(self) -> dict:
+        return dict(self.h5.attrs)
+
+    @property
+    def status(self) -> str:
+        return str(self.h5.attrs.get("status", "unknown"))
+
+    @property
+    def units(self) -> dict:
+        return json.loads(self.h5.attrs["units"])
+
+    @property
+    def packet(self) -> dict:
+        return json.loads(self.h5.attrs["packet"])
+
+    def scenario(self):
+        """The Scenario the run was made from (paths resolve as they did then)."""
+        source = str(self.h5.attrs.get("scenario_source") or self.path.with_suffix(".yaml"))
+        base = Path(source).parent
+        return load_scenario_text(str(self.h5.attrs["scenario"]), source, base)
+
+    @property
+    def x(self) -> np.ndarray:
+        return self.h5["grid/x"][...]
+
+    @property
+    def V(self) -> np.ndarray:
+        return self.h5["potential/V"][...]
+
+    @property
+    def absorber(self) -> Optional[np.ndarray]:
+        return self.h5["potential/absorber"][...] if "absorber" in self.h5["potential"] else None
+
+    @property
+    def times(self) -> np.ndarray:
+        return self.h5["snapshots/t"][...]
+
+    def __len__(self) -> int:
+        return self.h5["snapshots/t"].shape[0]
+
+    def psi(self, index: int) -> np.ndarray:
+        return self.h5["snapshots/psi"][index]
+
+    def snapshots(self):
+        """Iterate (t, ψ) one snapshot at a time."""
+        t = self.h5["snapshots/t"]
+        psi = self.h5["snapshots/psi"]
+        for i in range(t.shape[0]):
+            yield float(t[i]), psi[i]
+
+    def observables(self) -> dict:
+        g = self.h5["observables"]
+        return {name: g[name][...] for name in ("t",) + OBSERVABLES}
+
+    def samples(self) -> dict:
+        g = self.h5["observables/samples"]
+        out = {name: g[name][...] for name in ("t", "flux") + SAMPLES}
+        out["detectors"] = np.array(g.attrs["detectors"])
+        return out
+
+    @property
+    def region(self) -> Optional[tuple[float, float]]:
+        region = self.h5["observables"].attrs.get("region")
+        return None if region is None or np.any(np.isnan(region)) else tuple(map(float, region))
+
+    @property
+    def reference(self) -> float:
+        return float(self.h5.attrs["reference"])
+
+    def analysis(self) -> Optional[dict]:
+        """The saved delay analysis (JSON in /analysis), if any."""
+        if "analysis" in self.h5 and "result" in self.h5["analysis"].attrs:
+            return json.loads(self.h5["analysis"].attrs["result"])
+        return None
