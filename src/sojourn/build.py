@@ -108,6 +108,21 @@ def _default_detectors(potential, packet, grid, reference, absorber_width):
     return out
 
 
+def _default_region(potential, grid, absorber_width):
+    """The potential's support; where a level differs on one side (a step), the
+    region reaches to that side's absorber (or box edge), where the packet dwells."""
+    support = potential.support()
+    if support is None or potential.confining:
+        return None
+    a, b = support
+    left, right = potential.levels()
+    if right != left and right > left:
+        b = grid.right - absorber_width
+    elif right != left:
+        a = grid.left + absorber_width
+    return (a, b)
+
+
 def build(scenario: Scenario) -> Setup:
     """Make a scenario concrete and run the guards (see `Setup.findings`)."""
     findings: list[Finding] = []
@@ -173,8 +188,8 @@ def build(scenario: Scenario) -> Setup:
         reference = support[0] if info.k0 >= 0 else support[1]
     else:
         reference = 0.0
-    region = tuple(scenario.measure.region) if scenario.measure.region else (
-        (support[0], support[1]) if support is not None else None)
+    region = tuple(scenario.measure.region) if scenario.measure.region else _default_region(
+        potential, grid, absorber_width)
     detectors = list(scenario.measure.detectors) if scenario.measure.detectors is not None \
         else _default_detectors(potential, info, grid, reference, absorber_width)
 

@@ -65,3 +65,15 @@ def on_grid(grid, info: PacketInfo) -> np.ndarray:
 def free_width(width: float, t, hbar: float, mass: float):
     """rms width of a free Gaussian at time t: σ√(1 + (ħt/2mσ²)²)."""
     return width * np.sqrt(1 + (hbar * np.asarray(t) / (2 * mass * width ** 2)) ** 2)
+
+
+def free_evolution(x: np.ndarray, t: float, info: PacketInfo, hbar: float, mass: float) -> np.ndarray:
+    """The incident Gaussian evolved freely (at the constant level V = info.level)
+    to time t, exactly: with s = 1 + iħt/(2mσ²),
+    ψ = (2πσ²)^(-1/4) s^(-1/2) exp(-(x-x₀-v₀t)²/(4σ²s) + ik₀x - i(ħk₀²/2m + V)t/ħ)
+    (free spreading as in Cohen-Tannoudji, Diu, Laloë, Complement G_I)."""
+    s = 1 + 1j * hbar * t / (2 * mass * info.width ** 2)
+    v0 = hbar * info.k0 / mass
+    phase = info.k0 * x - (hbar * info.k0 ** 2 / (2 * mass) + info.level / hbar) * t
+    return ((2 * math.pi * info.width ** 2) ** -0.25 / np.sqrt(s)
+            * np.exp(-((x - info.center - v0 * t) ** 2) / (4 * info.width ** 2 * s) + 1j * phase))
