@@ -154,6 +154,7 @@ def build(scenario: Scenario) -> Setup:
         dt, dt_chosen = scenario.evolve.dt, False
     duration = scenario.evolve.duration
     steps = max(1, int(math.ceil(duration / dt - 1e-9)))
+    dt = duration / steps  # the run ends exactly at the duration (dt shrinks, if at all, by < 1 step)
     every = scenario.record.every or duration / 100
     record_steps = max(1, int(round(every / dt)))
     passage = info.width / max(abs(info.group_velocity), 1e-300)
@@ -221,7 +222,7 @@ def _guard(s: Setup, limit: float, absorber_width: float) -> None:
         add(Finding("error", "grid.points",
                     f"grid resolution too coarse: k_max = π/dx = {grid.k_max:.4g} but the packet "
                     f"needs ≥ {needed:.4g} (2·(|k₀| + 6σ_k)); use points ≥ {points}", forceable=True))
-    if info.k_ratio < 6:
+    if info.k_ratio < 6 and not s.potential.confining:
         add(Finding("warning", "packet.width",
                     f"k₀/σ_k = {info.k_ratio:.3g} < 6: the packet has content near k = 0, where "
                     "delays diverge; make the packet wider or faster"))

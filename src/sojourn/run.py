@@ -69,7 +69,7 @@ class Sampler:
         self.take(psi, (self.start_step + step) * self.dt)
 
     def batch(self) -> dict:
-        out = {"t": np.array(self.t), "flux": np.array(self.flux, dtype=float).reshape(len(self.t), -1),
+        out = {"t": np.array(self.t), "flux": np.array(self.flux, dtype=float).reshape(len(self.t), max(len(self.detectors), 1)),
                "P_region": np.array(self.p_region), "norm": np.array(self.norm),
                "absorbed_left": np.array(self.absorbed[0]),
                "absorbed_right": np.array(self.absorbed[1])}

@@ -1,0 +1,173 @@
+"""The split-operator propagator against published exact results (PHYSICS §2–4)."""
+import math
+
+import numpy as np
+import pytest
+
+from sojourn import packets
+from sojourn.build import build
+from sojourn.grid import Grid
+from sojourn.propagate import ORDER, Propagator
+from sojourn.runfile import RunFile
+from sojourn.scenario import loads
+
+
+def width_and_centre(x, psi, dx):
+    density = np.abs(psi) ** 2
+    total = density.sum() * dx
+    centre = (x * density).sum() * dx / total
+    return math.sqrt(((x - centre) ** 2 * density).sum() * dx / total), centre
+
+
+def test_free_spreading(run_scenario):
+    # source: σ(t) = σ√(1 + (ħt/2mσ²)²), D. J. Griffiths, Introduction to Quantum Mechanics,
+    # 2nd ed., Problem 2.22; Cohen-Tannoudji, Diu, Laloë, Quantum Mechanics, Complement G_I
+    setup, path = run_scenario("""
+        units: atomic
+        grid: {span: [-300.0, 300.0], points: 2048}
+        packet: {center: -100.0, width: 5.0, wavenumber: 1.0}
+        evolve: {duration: 100.0, dt: 0.05}
+        record: {every: 25.0}
+    """)
+    with RunFile(path) as rf:
+        for t, psi in rf.snapshots():
+            width, centre = width_and_centre(rf.x, psi, setup.grid.dx)
+            assert width == pytest.approx(5.0 * math.sqrt(1 + (t / (2 * 25.0)) ** 2), rel=1e-9)
+            assert centre == pytest.approx(-100.0 + t, abs=1e-8)
+
+
+def test_displaced_ground_state_oscillates_rigidly(run_scenario):
+    # source: a displaced ground-state Gaussian (σ² = ħ/2mω) in V = ½mω²(x−a)² keeps its
+    # shape and its centre follows a + (x₀−a)cos ωt (Cohen-Tannoudji et al., Complement G_V)
+    omega = 0.02  # σ = 5 ⇒ ω = ħ/(2mσ²) = 0.02
+    setup, path = run_scenario(f"""
+        units: atomic
+        grid: {{span: [-100.0, 100.0], points: 512}}
+        potential:
+          - harmonic: {{center: 2.0, omega: {omega}}}
+        packet: {{center: 32.0, width: 5.0, wavenumber: 0.0}}
+        evolve: {{duration: {2 * math.pi / omega:.10f}, dt: 0.05}}
+        record: {{every: 15.0}}
+    """)
+    with RunFile(path) as rf:
+        assert len(rf) > 20
+        for t, psi in rf.snapshots():
+            width, centre = width_and_centre(rf.x, psi, setup.grid.dx)
+            assert centre == pytest.approx(2.0 + 30.0 * math.cos(omega * t), abs=1e-4)
+            assert width == pytest.approx(5.0, rel=1e-5)
+
+
+def test_norm_conserved_without_absorber():
+    # source: the split-operator step is unitary for real V (Feit, Fleck & Steiger,
+    # J. Comput. Phys. 47, 412 (1982)); norm to round-off over 10⁴ steps
+    grid = Grid(-300.0, 300.0, 1024)
+    V = np.where(grid.x > 0, 1.0, 0.0)
+    prop = Propagator(grid, V, 1.0, 1.0, 0.05)
+    prop.set_state(packets.gaussian(grid.x, -100.0, 10.0, 1.0))
+    before = np.vdot(prop.psi, prop.psi).real
+    prop.advance(10_000)
+    assert abs(np.vdot(prop.psi, prop.psi).real / before - 1) < 1e-10
+
+
+@pytest.mark.parametrize("scheme", ["strang", "yoshida4"])
+def test_observed_order_of_convergence(scheme):
+    # source: Strang splitting is second order (Feit, Fleck & Steiger 1982); the triple
+    # jump is fourth order (H. Yoshida, Phys. Lett. A 150, 262 (1990))
+    grid = Grid(-100.0, 100.0, 512)
+    V = 0.5 * np.exp(-(grid.x / 3.0) ** 2 / 2)
+    psi0 = packets.gaussian(grid.x, -20.0, 4.0, 1.0)
+    duration = 20.0
+
+    def final(dt):
+        prop = Propagator(grid, V, 1.0, 1.0, dt, scheme)
+        prop.set_state(psi0)
+        prop.advance(int(round(duration / dt)))
+        return prop.psi.copy()
+
+    exact = final(0.5 / 256)
+    steps = [0.5, 0.25, 0.125]
+    errors = [np.linalg.norm(final(dt) - exact) * math.sqrt(grid.dx) for dt in steps]
+    orders = [math.log2(a / b) for a, b in zip(errors, errors[1:])]
+    assert all(abs(p - ORDER[scheme]) < 0.25 for p in orders), (errors, orders)
+
+
+STEP = """
+units: atomic
+grid: {span: [-600.0, 600.0], points: 2048}
+potential:
+  - step: {at: 0.0, height: 1.0}
+packet: {center: -200.0, width: 20.0, energy: 0.5}
+evolve: {duration: 450.0, dt: 0.05}
+absorber: {width: 80.0}
+record: {every: 50.0}
+"""
+
+
+def test_packet_below_step_is_reflected_completely(run_scenario):
+    # source: below a step |r| = 1, no current beyond it (Griffiths 2nd ed., Problem 2.34;
+    # Cohen-Tannoudji et al., Complement H_I)
+    setup, path = run_scenario(STEP)
+    assert setup.grid_phase < math.pi
+    with RunFile(path) as rf:
+        o = rf.observables()
+    assert o["P_right"][-1] + o["absorbed_right"][-1] < 1e-6
+    assert o["P_left"][-1] + o["absorbed_left"][-1] == pytest.approx(1.0, abs=1e-6)
+
+
+def spectrum_average(f, k0, sigma, n=4001):
+    # |ψ̃₀(k)|² of the Gaussian of PHYSICS §2: normal in k with σ_k = 1/(2σ)
+    sigma_k = 1 / (2 * sigma)
+    k = np.linspace(k0 - 8 * sigma_k, k0 + 8 * sigma_k, n)
+    w = np.exp(-((k - k0) ** 2) / (2 * sigma_k ** 2))
+    return float(np.sum(w * f(k)) / np.sum(w))
+
+
+def barrier_T(k, V0=1.0, a=1.0):
+    # source: rectangular barrier, Griffiths 2nd ed., Problem 2.33 (width a here)
+    E = k ** 2 / 2
+    kappa = np.sqrt(2 * (V0 - E + 0j))  # ħ = m = 1
+    return np.real(1 / (1 + V0 ** 2 * np.abs(np.sinh(kappa * a)) ** 2 / (4 * E * np.abs(V0 - E))))
+
+
+@pytest.mark.parametrize("absorber", [False, True])
+def test_barrier_transmission_matches_spectrum_averaged_closed_form(run_scenario, absorber):
+    # source: T = [1 + V₀² sinh²(κa)/(4E(V₀−E))]⁻¹ (Griffiths 2nd ed., Problem 2.33),
+    # averaged over the packet's momentum distribution
+    text = f"""
+        units: atomic
+        grid: {{span: [-350.0, 350.0], points: 4096}}
+        potential:
+          - barrier: {{start: 0.0, end: 1.0, height: 1.0}}
+        packet: {{center: -150.0, width: 20.0, energy: 0.5}}
+        evolve: {{duration: {500.0 if absorber else 300.0}, dt: 0.01}}
+        record: {{every: 30.0}}
+        measure: {{reference: 0.5}}
+    """ + ("    absorber: {width: 100.0}\n" if absorber else "")
+    setup, path = run_scenario(text)
+    with RunFile(path) as rf:
+        o = rf.observables()
+    T_theory = spectrum_average(barrier_T, 1.0, 20.0)
+    T_run = o["P_right"][-1] + o["absorbed_right"][-1]
+    R_run = o["P_left"][-1] + o["absorbed_left"][-1]
+    assert T_run == pytest.approx(T_theory, abs=1e-3)
+    assert R_run == pytest.approx(1 - T_theory, abs=1e-3)
+    if absorber:  # by the end both parts have entered the layers
+        assert o["absorbed_left"][-1] > 0.5 * (1 - T_theory)
+
+
+def test_absorbing_layer_reflects_little():
+    # common practice, no source: a smooth complex absorbing ramp (Riss & Meyer,
+    # J. Chem. Phys. 105, 1409 (1996)) should return < 1e-4 of a packet at its energies
+    text = """
+        units: atomic
+        grid: {span: [-400.0, 400.0], points: 2048}
+        packet: {center: -150.0, width: 20.0, energy: 0.5, direction: left}
+        evolve: {duration: 500.0, dt: 0.05}
+        absorber: {width: 100.0}
+    """
+    setup = build(loads(text, "a.yaml"))
+    prop = Propagator(setup.grid, setup.V, 1.0, 1.0, setup.dt, absorber=setup.W)
+    prop.set_state(setup.psi0())
+    prop.advance(setup.steps)
+    remaining = np.vdot(prop.psi, prop.psi).real * setup.grid.dx
+    assert remaining < 1e-4
