@@ -246,6 +246,91 @@ def build_parser() -> argparse.ArgumentParser:
 VERBS: list = []  # functions that add a verb's subparser (theory, delay, render, sweep, bench)
 
 
+# ---------------------------------------------------------------------------------------
+# delay
+
+
+def _num(value, digits=7) -> str:
+    return "—" if value is None else f"{value:.{digits}g}"
+
+
+def format_delay_report(report, moves=None) -> list:
+    """The delay report as lines of text: one table per channel, warnings below."""
+    lines = [f"{report.file}  (times in {report.units.get('time', '')})"]
+    for ch in report.channels():
+        lines += ["", f"{ch.channel}: probability {ch.probability:.6g} (detector flux "
+                      f"{_num(ch.probability_flux, 6)}, spectrum {_num(ch.probability_spectral, 6)}; "
+                      f"theory {_num(ch.predicted_probability, 6)}); reference: "
+                      f"{'filtered' if ch.filtered else 'free'} packet",
+                  f"  {'method':<10}{'measured':>14}{'predicted':>14}{'deviation':>12}"
+                  f"{'relative':>11}{'error bar':>11}"]
+        for method, r in ch.measured.items():
+            rel = "—" if r.relative is None else f"{r.relative:.2e}"
+            err = "—" if r.error is None else f"±{r.error:.2g}"
+            lines.append(f"  {method:<10}{_num(r.delay):>14}{_num(r.predicted):>14}"
+                         f"{_num(r.deviation, 3):>12}{rel:>11}{err:>11}")
+        lines.append(f"  phase delay at E₀ (Wigner) {_num(ch.wigner)}; flux-weighted ⟨τ⟩_w "
+                     f"{_num(ch.packet)}")
+    d = report.dwell
+    if d.get("measured") is not None:
+        lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "
+                      f"{_num(d['measured'])}, packet-averaged Büttiker {_num(d['predicted'])}"]
+    if moves:
+        lines += ["", "convergence (how far each delay moves):"]
+        lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "
+                  f"error bar ±{m['error']:.2g}" for key, m in moves.items()]
+    if report.warnings:
+        lines += [""] + [f"warning: {w}" for w in report.warnings]
+    return lines
+
+
+def cmd_delay(args) -> int:
+    from . import measure
+    moves = None
+    if args.verify:
+        _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
+              "run's cost; and Δt/2, about 2×) — this takes a while")
+        result = measure.verify(args.file, progress=_warn)
+        report, moves = result.report, result.moves
+    else:
+        report = measure.measure_delays(args.file, reference_run=args.reference_run)
+    if args.save:
+        measure.save_report(args.file, report)
+    if args.json:
+        out = report.to_dict()
+        if moves is not None:
+            out["convergence"] = moves
+        _say(json.dumps(out, indent=2))
+    else:
+        for line in format_delay_report(report, moves):
+            _say(line)
+        if args.save:
+            _say(f"saved the analysis into {args.file} (/analysis)")
+    return EXIT_OK
+
+
+def add_delay(sub) -> None:
+    p = sub.add_parser("delay", help="measured delays beside theory")
+    p.add_argument("file", help="a run file")
+    p.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    p.add_argument("--save", action="store_true", help="store the result in the run file (/analysis)")
+    p.add_argument("--verify", action="store_true",
+                   help="rerun finer (2N points, Δt/4) and at Δt/2 for Richardson error bars (slow)")
+    p.add_argument("--reference-run", metavar="FILE",
+                   help="a run of the same packet without the potential, used as the reference")
+    p.set_defaults(func=cmd_delay)
+
+
+def demo_delay(run_path, out_folder, args) -> None:
+    from . import measure
+    for line in format_delay_report(measure.measure_delays(run_path)):
+        _say(line)
+
+
+VERBS.append(add_delay)
+DEMO_STEPS.append(demo_delay)
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     debug = "--debug" in argv
