@@ -55,6 +55,7 @@ class MovieOptions:
     xlim: Optional[tuple[float, float]] = None
     curves: tuple[str, ...] = DEFAULT_CURVES
     quality: int = 18      # H.264 constant rate factor (lower is better; 18 looks lossless)
+    preset: str = "veryfast"   # x264 speed preset: the encoder, not drawing, sets the pace
 
 
 @dataclass(frozen=True)
@@ -325,8 +326,10 @@ def _check_output(path: Path, formats: tuple[str, ...], what: str) -> Path:
     return path
 
 
-def open_encoder(path: Path, size: tuple[int, int], fps: float, quality: int = 18):
-    """A started imageio-ffmpeg frame sink: `.send(rgb_uint8_HxWx3)`, `.close()`.
+def open_encoder(path: Path, size: tuple[int, int], fps: float, quality: int = 18,
+                 preset: str = "veryfast"):
+    """A started imageio-ffmpeg frame sink: `.send(rgba)` with an H×W×4 uint8
+    buffer (the canvas buffer itself, no copy), `.close()`.
     MP4: H.264 in yuv420p (plays in presentation and browser players; needs even
     sides). GIF: one palette per frame, so it streams and keeps colours true."""
     import imageio_ffmpeg
@@ -336,13 +339,15 @@ def open_encoder(path: Path, size: tuple[int, int], fps: float, quality: int = 1
             raise RenderError(f"--size {size[0]}x{size[1]}: H.264 in yuv420p needs an even width "
                               "and height")
         writer = imageio_ffmpeg.write_frames(
-            str(path), size, fps=fps, codec="libx264", pix_fmt_out="yuv420p", quality=None,
-            macro_block_size=1, output_params=["-crf", str(int(quality)), "-preset", "fast",
+            str(path), size, fps=fps, codec="libx264", pix_fmt_in="rgba", pix_fmt_out="yuv420p",
+            quality=None, macro_block_size=1,
+            output_params=["-crf", str(int(quality)), "-preset", preset,
                                                "-movflags", "+faststart"])
     else:
         palette = "split[a][b];[a]palettegen=stats_mode=single[p];[b][p]paletteuse=new=1"
         writer = imageio_ffmpeg.write_frames(
-            str(path), size, fps=fps, codec="gif", pix_fmt_out="pal8", quality=None,
+            str(path), size, fps=fps, codec="gif", pix_fmt_in="rgba", pix_fmt_out="pal8",
+            quality=None,
             macro_block_size=1, output_params=["-filter_complex", palette, "-loop", "0"])
     writer.send(None)  # start ffmpeg
     return writer
@@ -476,8 +481,8 @@ class MovieFrame:
         self.background = self.canvas.copy_from_bbox(fig.bbox)
 
     def draw(self, t: float, psi: np.ndarray) -> np.ndarray:
-        """Update the moving artists for (t, ψ) and return the frame, H×W×3 uint8
-        (a view of the canvas buffer; valid until the next call)."""
+        """Update the moving artists for (t, ψ) and return the frame, H×W×4 RGBA
+        uint8 (the canvas buffer itself; valid until the next call)."""
         f = self.facts
         psi = psi[self.index]
         density = psi.real ** 2 + psi.imag ** 2
@@ -503,7 +508,7 @@ class MovieFrame:
         for artist in self.moving:
             if artist.get_visible():
                 self.ax.draw_artist(artist)
-        return np.asarray(self.canvas.buffer_rgba())[..., :3]
+        return np.asarray(self.canvas.buffer_rgba())
 
 
 def _peaks(run: RunFile, facts: RunFacts, options: MovieOptions) -> dict:
@@ -523,8 +528,8 @@ def _peaks(run: RunFile, facts: RunFacts, options: MovieOptions) -> dict:
 
 
 def frames(path, options: MovieOptions = MovieOptions()) -> Iterator[np.ndarray]:
-    """The movie's frames (H×W×3 uint8, one per snapshot, each a view reused by
-    the next), drawn while the snapshots are read one at a time."""
+    """The movie's frames (H×W×4 RGBA uint8, one per snapshot, each the same
+    buffer redrawn), drawn while the snapshots are read one at a time."""
     with _open_run(path) as run:
         facts = run_facts(run)
         frame = MovieFrame(facts, options, _peaks(run, facts, options))
@@ -543,11 +548,11 @@ def render_movie(path, output, options: MovieOptions = MovieOptions(),
     parse_curves(",".join(options.curves))
     with _open_run(path) as run:
         total = len(run)
-    writer = open_encoder(output, options.size, options.fps, options.quality)
+    writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
     done = 0
     try:
         for image in frames(path, options):
-            writer.send(np.ascontiguousarray(image))
+            writer.send(image)
             done += 1
             if progress:
                 progress(done, total)
@@ -633,29 +638,21 @@ def _channels(analysis: dict) -> list[tuple[str, dict]]:
 
 
 def theory_delays(facts: RunFacts, energies: np.ndarray) -> dict:
-    """τ_R(E), τ_T(E) from the theory module for the run's scenario, or {} when
-    it cannot say (module absent, or the potential outside its reach)."""
+    """τ_R(E), τ_T(E) of stationary scattering (`theory.scatter_scenario`, r
+    referenced at the run's mirror point) for the run's scenario; {} when the
+    theory cannot say (the potential outside its reach)."""
     if facts.scenario is None:
         return {}
+    from . import theory
     try:
-        from . import theory
-    except ImportError:
+        result = theory.scatter_scenario(facts.scenario, energies, x_r=facts.reference)
+    except (SojournError, ValueError, ArithmeticError):
         return {}
-    fn = getattr(theory, "delays", None) or getattr(theory, "scattering", None)
-    if fn is None:
-        return {}
-    try:
-        result = fn(facts.scenario, energies)
-    except (SojournError, ValueError, ArithmeticError, TypeError):
-        return {}
-    get = result.get if isinstance(result, dict) else lambda k: getattr(result, k, None)
     out = {}
-    for channel, key in (("reflection", "delay_reflection"), ("transmission", "delay_transmission")):
-        values = get(key)
-        if values is not None:
-            values = np.asarray(values, dtype=float)
-            if values.shape == energies.shape:
-                out[channel] = values
+    for channel in ("reflection", "transmission"):
+        values = np.asarray(getattr(result, f"delay_{channel}"), dtype=float)
+        if values.shape == energies.shape and np.any(np.isfinite(values)):
+            out[channel] = values
     return out
 
 
@@ -663,8 +660,8 @@ def _delay_panel(ax, facts: RunFacts, look: Look, font: float, lw: float) -> Non
     """τ(E) from theory, the measured delays with error bars at E₀, the spectrum."""
     info, u = facts.packet, facts.units
     sigma_e = facts.hbar ** 2 * abs(info.k0) * info.sigma_k / facts.mass
-    e_lo = max(info.energy - 4 * sigma_e, info.level + 1e-3 * sigma_e)
-    energies = np.linspace(e_lo, info.energy + 4 * sigma_e, 400)
+    e_lo = max(info.energy - 3 * sigma_e, info.level + 1e-3 * sigma_e)
+    energies = np.linspace(e_lo, info.energy + 3 * sigma_e, 400)
     spectrum = energy_spectrum(energies, info, facts.hbar, facts.mass)
     shade = ax.twinx()
     shade.fill_between(energies, 0, spectrum, color=look.density, alpha=0.15, linewidth=0)
