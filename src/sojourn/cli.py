@@ -331,6 +331,44 @@ VERBS.append(add_delay)
 DEMO_STEPS.append(demo_delay)
 
 
+# ---------------------------------------------------------------------------------------
+# theory
+
+
+def cmd_theory(args) -> int:
+    from . import theory
+    from .scenario import load
+    scenario = load(args.scenario)
+    energies = theory.parse_energies(args.energies) if args.energies else None
+    table = theory.theory_table(scenario, energies)
+    if args.plot:
+        theory.plot_theory(table, args.plot)
+    if args.json:
+        _say(json.dumps(table, indent=2))
+    elif args.csv:
+        sys.stdout.write(theory.table_csv(table))
+    else:
+        sys.stdout.write(theory.format_table(table))
+        if args.plot:
+            _say(f"wrote {args.plot}")
+    return EXIT_OK
+
+
+def add_theory(sub) -> None:
+    p = sub.add_parser("theory", help="R, T, phases, phase delays, dwell time versus energy")
+    p.add_argument("scenario")
+    p.add_argument("--energies", metavar="A:B:N",
+                   help="N energies from A to B in the scenario's units (default: the packet's band)")
+    fmt = p.add_mutually_exclusive_group()
+    fmt.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    fmt.add_argument("--csv", action="store_true", help="the per-energy columns as CSV")
+    p.add_argument("--plot", metavar="FILE.png", help="draw R, T and the delays against energy")
+    p.set_defaults(func=cmd_theory)
+
+
+VERBS.append(add_theory)
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     debug = "--debug" in argv
