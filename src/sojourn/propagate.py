@@ -103,22 +103,53 @@ class Propagator:
                 sampler: Optional[Callable[[np.ndarray, int], None]] = None) -> None:
         """Advance by `steps` steps. If given, sampler(buffer, k) is called after
         step k (1-based) for every k divisible by sample_every, before the kick
-        that follows (see the module note)."""
+        that follows (see the module note).
+
+        The steps between two samples run as one stretch of fused kicks, so the
+        Python work per step is the FFT calls and the in-place multiplies."""
         if steps <= 0:
             return
-        buf, fwd, bwd = self.buffer, self.fft.forward, self.fft.backward
-        drifts, inner, between = self._drifts, self._inner, self._between
-        last_sub = len(drifts) - 1
-        buf *= self._first
-        for step in range(1, steps + 1):
-            for j, drift in enumerate(drifts):
+        if sampler is None or sample_every <= 0:
+            sampler, sample_every = None, steps + 1
+        buf, between = self.buffer, self._between
+        np.multiply(buf, self._first, out=buf)
+        done = 0
+        while done < steps:
+            stretch = min(sample_every - done % sample_every, steps - done)
+            self._stretch(stretch)
+            done += stretch
+            if sampler is not None and done % sample_every == 0:
+                sampler(buf, done)
+            if done < steps:
+                np.multiply(buf, between, out=buf)
+        np.multiply(buf, self._last, out=buf)
+
+    def _stretch(self, count: int) -> None:
+        """`count` steps that start after an opening kick and end after the last
+        drift (the closing kick is the caller's)."""
+        buf, fwd, bwd, mul = self.buffer, self.fft.forward, self.fft.backward, np.multiply
+        between = self._between
+        if len(self._drifts) == 1:  # strang: FFT, drift, FFT, kick
+            drift = self._drifts[0]
+            for _ in range(count - 1):
                 fwd()
-                buf *= drift
+                mul(buf, drift, out=buf)
                 bwd()
-                if j < last_sub:
-                    buf *= inner[j]
-            if sampler is not None and step % sample_every == 0:
-                sampler(buf, step)
-            if step < steps:
-                buf *= between
-        buf *= self._last
+                mul(buf, between, out=buf)
+            fwd()
+            mul(buf, drift, out=buf)
+            bwd()
+            return
+        subs = list(zip(self._drifts[:-1], self._inner))
+        last_drift = self._drifts[-1]
+        for n in range(count):
+            for drift, kick in subs:
+                fwd()
+                mul(buf, drift, out=buf)
+                bwd()
+                mul(buf, kick, out=buf)
+            fwd()
+            mul(buf, last_drift, out=buf)
+            bwd()
+            if n < count - 1:
+                mul(buf, between, out=buf)
