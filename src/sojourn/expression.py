@@ -11,11 +11,16 @@ import ast
 import operator
 
 import numpy as np
-from scipy.special import erf
 
 MAX_LENGTH = 4000
 MAX_NODES = 500
 MAX_DEPTH = 40
+
+def erf(a):
+    """The error function (scipy's, imported on first use: it is slow to import)."""
+    from scipy.special import erf as _erf
+    return _erf(a)
+
 
 FUNCTIONS = {
     "sin": np.sin, "cos": np.cos, "tan": np.tan, "exp": np.exp, "log": np.log,

@@ -12,6 +12,7 @@ import json
 import os
 import platform
 import sys
+import time
 from pathlib import Path
 from typing import Optional
 
@@ -26,6 +27,7 @@ FORMAT_VERSION = 1
 OBSERVABLES = ("norm", "x_mean", "p_mean", "energy", "P_left", "P_right", "P_region",
                "absorbed_left", "absorbed_right")
 SAMPLES = ("norm", "P_region", "absorbed_left", "absorbed_right")
+COMMIT_SECONDS = 2.0  # the most run time a crash can lose
 
 
 class RunFileError(SojournError):
@@ -59,7 +61,7 @@ def _resizable(group, name, shape_tail=(), dtype="f8"):
 
 def _append(dataset, values) -> None:
     values = np.asarray(values)
-    if values.ndim == len(dataset.shape) - 1:
+    if values.ndim < len(dataset.shape):
         values = values[None]
     n = dataset.shape[0]
     dataset.resize(n + len(values), axis=0)
@@ -74,6 +76,13 @@ class RunWriter:
         self.h5 = handle
         self.final = final
         self.partial = Path(handle.filename)
+        # dataset handles, looked up once (a lookup costs more than a small write)
+        self._snap = {name: handle["snapshots"][name] for name in ("t", "step", "psi")}
+        self._obs = {name: handle["observables"][name] for name in ("t",) + OBSERVABLES}
+        self._smp = {name: handle["observables/samples"][name] for name in ("t", "flux") + SAMPLES}
+        self._ck_psi, self._ck_info = handle["checkpoint/psi"], handle["checkpoint/info"]
+        self._pending: list = []      # (step, t, psi copy, observables, samples, raw absorbed)
+        self._committed = time.monotonic()
 
     # -- creation ------------------------------------------------------------------------
     @classmethod
@@ -197,35 +206,53 @@ class RunWriter:
     # -- writing -------------------------------------------------------------------------
     def snapshot(self, step: int, t: float, psi: np.ndarray, observables: dict,
                  samples: dict, raw_absorbed: tuple[float, float]) -> None:
-        """Append a snapshot, its observables and the samples since the last one,
-        update the checkpoint, and flush."""
-        f = self.h5
+        """Append a snapshot; its observables, the samples since the last one and
+        the checkpoint follow at the next commit (at most COMMIT_SECONDS later)."""
         try:
-            _append(f["snapshots/t"], t)
-            _append(f["snapshots/step"], step)
-            _append(f["snapshots/psi"], psi)
-            _append(f["observables/t"], t)
-            for name in OBSERVABLES:
-                _append(f["observables"][name], observables[name])
-            smp = f["observables/samples"]
-            if len(samples["t"]):
-                _append(smp["t"], samples["t"])
-                _append(smp["flux"], samples["flux"])
-                for name in SAMPLES:
-                    _append(smp[name], samples[name])
-            f["checkpoint/psi"][...] = psi
-            f["checkpoint/info"][...] = [step, t, f["snapshots/t"].shape[0], smp["t"].shape[0],
-                                         raw_absorbed[0], raw_absorbed[1]]
-            f.flush()
+            _append(self._snap["t"], t)
+            _append(self._snap["step"], step)
+            _append(self._snap["psi"], psi)
         except OSError as exc:
-            self.close("failed")
-            raise RunFileError(f"writing {self.partial} failed ({exc}); what was written before "
-                               "is kept") from None
+            self._fail(exc)
+        self._pending.append((step, t, psi.copy(), observables, samples, raw_absorbed))
+        if time.monotonic() - self._committed >= COMMIT_SECONDS:
+            self.commit()
+
+    def commit(self) -> None:
+        """Write what is pending and the checkpoint, and flush: after this, the
+        file on disk is a consistent, resumable run up to the last snapshot."""
+        if not self._pending:
+            return
+        try:
+            pending = self._pending
+            _append(self._obs["t"], [item[1] for item in pending])
+            for name in OBSERVABLES:
+                _append(self._obs[name], [item[3][name] for item in pending])
+            batches = [item[4] for item in pending if len(item[4]["t"])]
+            if batches:
+                for name in ("t", "flux") + SAMPLES:
+                    _append(self._smp[name], np.concatenate([b[name] for b in batches]))
+            step, t, psi, _, _, raw = self._pending[-1]
+            self._ck_psi[...] = psi
+            self._ck_info[...] = [step, t, self._obs["t"].shape[0], self._smp["t"].shape[0],
+                                  raw[0], raw[1]]
+            self.h5.flush()
+        except OSError as exc:
+            self._fail(exc)
+        self._pending.clear()
+        self._committed = time.monotonic()
+
+    def _fail(self, exc: OSError):
+        self._pending.clear()
+        self.close("failed")
+        raise RunFileError(f"writing {self.partial} failed ({exc}); what was written before "
+                           "is kept") from None
 
     def close(self, status: str) -> None:
         """Close with a status (interrupted, failed); the .partial file stays."""
         if self.h5.id.valid:
             try:
+                self.commit()
                 self.h5.attrs["status"] = status
                 self.h5.flush()
             finally:
@@ -233,6 +260,7 @@ class RunWriter:
 
     def finish(self) -> Path:
         """Mark complete, close, and rename NAME.h5.partial → NAME.h5."""
+        self.commit()
         self.h5.attrs["status"] = "complete"
         self.h5.attrs["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat()
         self.h5.close()
@@ -321,10 +349,11 @@ class RunFile:
 
     @property
     def times(self) -> np.ndarray:
-        return self.h5["snapshots/t"][...]
+        return self.h5["snapshots/t"][: len(self)]
 
     def __len__(self) -> int:
-        return self.h5["snapshots/t"].shape[0]
+        """Snapshots with their observables (a crashed run may hold a few more psi)."""
+        return min(self.h5["snapshots/t"].shape[0], self.h5["observables/t"].shape[0])
 
     def psi(self, index: int) -> np.ndarray:
         return self.h5["snapshots/psi"][index]
@@ -333,7 +362,7 @@ class RunFile:
         """Iterate (t, ψ) one snapshot at a time."""
         t = self.h5["snapshots/t"]
         psi = self.h5["snapshots/psi"]
-        for i in range(t.shape[0]):
+        for i in range(len(self)):
             yield float(t[i]), psi[i]
 
     def observables(self) -> dict:
