@@ -49,6 +49,9 @@ K_SPAN = 8.0            # the packet's band: k₀ ± 8σ_k (as the theory's aver
 ABOVE_TOP_WARN = 1e-3   # share of the packet above the barrier top that calls for a warning
 OUT_OF_BAND_WARN = 1e-6  # probability outside the packet's k-band that calls for a warning
 LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
+PASSAGE_GAP = 4.0       # widths between the incident and reflected passages at a detector
+SAFETY = 1.25           # factor on the Richardson estimate (grid convergence index, Roache 1994)
+CHANNEL_MIN = 1e-6      # outgoing probability below which a channel is not measured
 
 
 class MeasureError(SojournError):
@@ -428,7 +431,7 @@ def _measure_channel(run: _Run, stats: dict, channel: str, warnings: list,
             measured["centroid"] = MethodResult(float(np.mean(delays)))
             report.snapshots_used = int(usable.sum())
             drift = float(np.ptp(delays)) if len(delays) > 1 else 0.0
-            if drift > 1e-2 * max(abs(float(np.mean(delays))), 1e-12 * hbar / max(info.energy, 1e-300)):
+            if drift > 1e-3 * max(abs(float(np.mean(delays))), info.width / info.group_velocity):
                 warnings.append(f"the {word} centroid delay drifts by {drift:.3g} across the "
                                 f"{len(delays)} snapshots used: the reference may not match the "
                                 "outgoing spectrum")
@@ -453,7 +456,7 @@ def _measure_channel(run: _Run, stats: dict, channel: str, warnings: list,
         if channel == "reflection":
             split = (run.x_r - info.center) / info.group_velocity
             gap = 2 * (run.x_r - xd)
-            if gap < 2 * SEPARATION * float(packets.free_width(info.width, split, hbar, m)):
+            if gap < 2 * PASSAGE_GAP * float(packets.free_width(info.width, split, hbar, m)):
                 warnings.append(f"the detector at {report.detector:g} is too close to the "
                                 "potential: incident and reflected passages overlap there")
             sel = ts >= split
@@ -575,17 +578,21 @@ def _measure(run: _Run, ref: Optional[_Run]) -> DelayReport:
     if len(run.times) < 2:
         raise MeasureError(f"{rf.path}: the run holds fewer than two snapshots; nothing to measure")
     stats = _snapshot_stats(run)
-    reflection = _measure_channel(run, stats, "reflection", warnings, ref)
+    reflected = float(run.observables["P_left"][-1] + run.observables["absorbed_left"][-1])
+    reflection = None
+    if reflected > CHANNEL_MIN:
+        reflection = _measure_channel(run, stats, "reflection", warnings, ref)
     transmitted = float(run.observables["P_right"][-1] + run.observables["absorbed_right"][-1])
     transmission = None
-    if transmitted > 1e-6:
+    if transmitted > CHANNEL_MIN:
         transmission = _measure_channel(run, stats, "transmission", warnings, ref)
 
     prediction, why = predictions(run.scenario, rf.reference, run.region)
     if prediction is None:
         warnings.append(f"no theory prediction: {why}")
     else:
-        _attach(reflection, prediction.reflection)
+        if reflection is not None:
+            _attach(reflection, prediction.reflection)
         if transmission is not None:
             _attach(transmission, prediction.transmission)
             if prediction.transmission is None or prediction.transmission.probability < 1e-8:
@@ -643,9 +650,10 @@ def _health(run: _Run, stats, reflection, transmission, warnings) -> None:
     spectrum = np.abs(np.fft.fft(psi)) ** 2
     kgrid = np.abs(2 * math.pi * np.fft.fftfreq(len(psi), d=run.dx))
     band = np.abs(kgrid - info.k0) <= K_SPAN * info.sigma_k
-    q2 = info.k0 ** 2 - 2 * m * (run.level_out - info.level) / hbar ** 2
-    if q2 > 0:
-        band |= np.abs(kgrid - math.sqrt(q2)) <= K_SPAN * info.sigma_k
+    shift = 2 * m * (run.level_out - info.level) / hbar ** 2
+    edges = [max(info.k0 - K_SPAN * info.sigma_k, 0.0), info.k0 + K_SPAN * info.sigma_k]
+    q_lo, q_hi = (math.sqrt(max(e * e - shift, 0.0)) for e in edges)
+    band |= (kgrid >= q_lo) & (kgrid <= q_hi)       # the transmitted wavenumbers
     total = float(spectrum.sum())
     outside = float(spectrum[~band].sum() / total) if total > 0 else 0.0
     if outside > OUT_OF_BAND_WARN:
@@ -752,7 +760,7 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
                 err_grid = _richardson(result.delay, values["grid"], 4.0) if "grid" in values else 0.0
                 err_time = _richardson(result.delay, values["time"], 2.0 ** order) \
                     if "time" in values else 0.0
-                result.error = max(err_grid, err_time)
+                result.error = SAFETY * max(err_grid, err_time)
                 moves[f"{channel}.{method}"] = {
                     "grid": values.get("grid", math.nan) - result.delay,
                     "time": values.get("time", math.nan) - result.delay,

@@ -1,0 +1,57 @@
+"""The delay report's shape, saving and the command line."""
+import json
+
+import h5py
+import numpy as np
+import pytest
+
+from sojourn import cli
+from sojourn.measure import measure_delays, save_report
+from sojourn.runfile import RunFile
+
+FREE = """
+units: atomic
+grid: {span: [-300.0, 300.0], points: 512}
+packet: {center: -150.0, width: 20.0, energy: 0.5}
+evolve: {duration: 330.0, dt: 0.2}
+record: {every: 15.0}
+measure: {detectors: [100.0]}
+"""
+
+
+def test_json_shape_and_save_touches_only_analysis(run_scenario, capsys):
+    _, path = run_scenario(FREE)
+    with h5py.File(path, "r") as f:
+        before = f["snapshots/psi"][...]
+    assert cli.main(["delay", str(path), "--json", "--save"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert set(out) >= {"units", "reflection", "transmission", "warnings"}
+    assert out["units"]["time"] == "hbar/E_h"
+    tr = out["transmission"]
+    assert set(tr) >= {"probability", "measured", "theory", "dwell"}
+    assert set(tr["theory"]) >= {"wigner", "packet"}
+    for method in ("centroid", "arrival", "spectral"):
+        assert set(tr["measured"][method]) >= {"delay", "predicted", "deviation", "error"}
+    with RunFile(path) as rf:
+        assert rf.analysis()["transmission"]["probability"] == pytest.approx(tr["probability"])
+        assert np.array_equal(rf.h5["snapshots/psi"][...], before)
+
+
+def test_plain_table_and_bad_file(run_scenario, tmp_path, capsys):
+    _, path = run_scenario(FREE)
+    assert cli.main(["delay", str(path)]) == 0
+    text = capsys.readouterr().out
+    assert "transmission" in text and "centroid" in text and "predicted" in text
+    bad = tmp_path / "nothing.h5"
+    bad.write_text("not hdf5")
+    assert cli.main(["delay", str(bad)]) == 2
+    assert "Traceback" not in capsys.readouterr().err
+
+
+def test_report_to_dict_is_json(run_scenario):
+    _, path = run_scenario(FREE)
+    report = measure_delays(path)
+    json.dumps(report.to_dict())
+    save_report(path, report)
+    with RunFile(path) as rf:
+        assert rf.analysis() == json.loads(json.dumps(report.to_dict()))
