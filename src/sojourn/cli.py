@@ -369,6 +369,49 @@ def add_theory(sub) -> None:
 VERBS.append(add_theory)
 
 
+# bench: this machine's throughput against the FFT limit
+
+
+def cmd_bench(args) -> int:
+    from . import bench
+    from .fft import backend_name
+    sizes = args.sizes or (bench.QUICK_SIZES if args.quick else bench.FULL_SIZES)
+    budget = 0.3 if args.quick else 1.5
+    results = bench.survey(sizes, args.single, args.threads, budget)
+    if args.json:
+        _say(json.dumps({"fft": backend_name(), "results": [r.as_dict() for r in results]},
+                        indent=2))
+        return EXIT_OK
+    _say(f"FFT {backend_name()}, {'single' if args.single else 'double'} precision; the FFT "
+         "limit is a bare planned FFT pair plus two multiplies")
+    _say(f"{'points':>8} {'threads':>7} {'steps/s':>10} {'limit/s':>10} {'fraction':>8} "
+         f"{'unsampled':>9} {'sampled every':>13} {'point-steps/s':>13}")
+    for r in results:
+        _say(f"{r.points:>8} {r.threads:>7} {r.steps_per_second:>10.4g} "
+             f"{r.limit_steps_per_second:>10.4g} {r.fraction:>8.2f} "
+             f"{r.propagator_fraction:>9.2f} {r.sample_steps:>13} "
+             f"{r.point_steps_per_second:>13.3g}")
+    _say("fraction: of the FFT limit, with the run loop's sampling at its default rate "
+         "(unsampled: the propagator alone).")
+    _say("A run of N points and S steps takes about N·S / (point-steps/s) seconds here "
+         "(plus writing snapshots).")
+    return EXIT_OK
+
+
+def add_bench(sub) -> None:
+    p = sub.add_parser("bench", help="this machine's steps per second against the FFT limit")
+    p.add_argument("--quick", action="store_true", help="four grid sizes, a few seconds")
+    p.add_argument("--sizes", type=int, nargs="+", metavar="N", help="grid sizes to measure")
+    p.add_argument("--single", action="store_true", help="single precision (complex64)")
+    p.add_argument("--threads", type=int, default=None,
+                   help="FFT threads (default: 1, or $SOJOURN_FFT_THREADS)")
+    p.add_argument("--json", action="store_true")
+    p.set_defaults(func=cmd_bench)
+
+
+VERBS.append(add_bench)
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     debug = "--debug" in argv

@@ -20,6 +20,7 @@ except ImportError:  # pragma: no cover - depends on the machine
 
 _NOTICE_GIVEN = False
 THREAD_THRESHOLD = 1 << 16  # below this, a second thread costs more than it gains
+THREADS_VARIABLE = "SOJOURN_FFT_THREADS"
 
 
 def backend_name() -> str:
@@ -52,7 +53,17 @@ def _save_wisdom() -> None:
 
 
 def default_threads(n: int) -> int:
-    return min(os.cpu_count() or 1, 2) if n >= THREAD_THRESHOLD else 1
+    """FFT threads for an n-point transform: one, unless the environment variable
+    SOJOURN_FFT_THREADS asks for more (used only from THREAD_THRESHOLD points up).
+
+    Measured on a shared 2-core machine (benchmarks/RESULTS.md): a second FFTW
+    thread gained up to 1.3x on an idle machine but lost 2-40x whenever the other
+    core was busy, so more threads are the user's choice, not the default."""
+    try:
+        wanted = int(os.environ.get(THREADS_VARIABLE, "1"))
+    except ValueError:
+        wanted = 1
+    return max(1, min(wanted, os.cpu_count() or 1)) if n >= THREAD_THRESHOLD else 1
 
 
 class FFTPair:
