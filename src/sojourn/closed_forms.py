@@ -81,7 +81,7 @@ def barrier_transmission(E, height, width, hbar=1.0, mass=1.0):
     E = np.asarray(E, dtype=float)
     k = _k(E, 0.0, hbar, mass)
     q = np.sqrt(2 * mass * (E - height) + 0j) / hbar
-    q = np.where(E < height, 1j * np.sqrt(2 * mass * (height - E)) / hbar, q)
+    q = np.where(E < height, 1j * np.sqrt(2 * mass * np.abs(height - E)) / hbar, q)
     qa = q * width
     return 1.0 / (np.cos(qa) - 1j * (k ** 2 + q ** 2) / (2 * k * q) * np.sin(qa))
 
