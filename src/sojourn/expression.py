@@ -8,6 +8,7 @@ overflows to inf at once instead of building a huge integer.
 from __future__ import annotations
 
 import ast
+import math
 import operator
 
 import numpy as np
@@ -30,6 +31,11 @@ FUNCTIONS = {
     "where": np.where, "minimum": np.minimum, "maximum": np.maximum,
     "clip": np.clip, "sech": lambda a: 1.0 / np.cosh(a), "erf": erf,
 }
+# how many arguments each function takes: numpy's ufuncs accept an output array
+# as an extra positional argument, which must never reach them
+ARITY = {name: (1, 1) for name in FUNCTIONS}
+ARITY.update({"heaviside": (1, 2), "where": (3, 3), "minimum": (2, 2), "maximum": (2, 2),
+              "clip": (3, 3)})
 CONSTANTS = {"pi": np.pi, "e": np.e}
 BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
           ast.Div: operator.truediv, ast.Pow: operator.pow}
@@ -49,7 +55,14 @@ def _check(node: ast.AST, depth: int = 0) -> None:
         return _check(node.body, depth + 1)
     if isinstance(node, ast.Constant):
         if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
-            raise ExpressionError(f"only numbers are allowed as constants, not {node.value!r}")
+            raise ExpressionError(f"only numbers are allowed as constants, not "
+                                  f"{_short(node.value)}")
+        try:
+            finite = math.isfinite(float(node.value))
+        except OverflowError:
+            finite = False
+        if not finite:
+            raise ExpressionError(f"the number {_short(node.value)} is too large for a float")
         return
     if isinstance(node, ast.Name):
         if node.id != "x" and node.id not in CONSTANTS:
@@ -72,11 +85,21 @@ def _check(node: ast.AST, depth: int = 0) -> None:
                                   f"(allowed: {', '.join(sorted(FUNCTIONS))})")
         if node.keywords:
             raise ExpressionError("keyword arguments are not allowed")
+        low, high = ARITY[node.func.id]
+        if not low <= len(node.args) <= high:
+            wanted = str(low) if low == high else f"{low} to {high}"
+            raise ExpressionError(f"'{node.func.id}' takes {wanted} argument(s), "
+                                  f"not {len(node.args)}")
         for arg in node.args:
             _check(arg, depth + 1)
         return
     raise ExpressionError(f"'{type(node).__name__}' is not allowed in a formula "
                           "(only numbers, x, + - * / **, comparisons and whitelisted functions)")
+
+
+def _short(value, limit: int = 40) -> str:
+    text = repr(value)
+    return text if len(text) <= limit else text[:limit] + "..."
 
 
 def parse(text: str) -> ast.Expression:
@@ -91,19 +114,40 @@ def parse(text: str) -> ast.Expression:
         tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
         raise ExpressionError(f"not a valid formula ({exc.msg})") from None
-    except (RecursionError, MemoryError, ValueError):
+    except (RecursionError, MemoryError):
         raise ExpressionError("formula too deeply nested") from None
+    except ValueError as exc:   # e.g. a null character, or an integer of > 4300 digits
+        raise ExpressionError(f"not a valid formula ({_short(str(exc), 80)})") from None
     if sum(1 for _ in ast.walk(tree)) > MAX_NODES:
         raise ExpressionError(f"formula has more than {MAX_NODES} parts")
     _check(tree)
+    _fold(tree.body)
     return tree
+
+
+def _fold(node: ast.AST):
+    """The value of a part that does not depend on x (None if it does); a constant
+    part that is not finite (9**9**9, 1/0, log(0)) is refused here, before any grid."""
+    children = [node.left, node.right] if isinstance(node, ast.BinOp) else \
+        [node.operand] if isinstance(node, ast.UnaryOp) else \
+        [node.left, node.comparators[0]] if isinstance(node, ast.Compare) else \
+        list(node.args) if isinstance(node, ast.Call) else []
+    values = [_fold(child) for child in children]
+    if isinstance(node, ast.Name) and node.id == "x" or any(v is None for v in values):
+        return None
+    with np.errstate(all="ignore"):
+        value = np.asarray(_eval(node, np.zeros(1)), dtype=float)
+    if not np.all(np.isfinite(value)):
+        raise ExpressionError(f"the part {_short(ast.unparse(node))!r} is not a finite number "
+                              f"({float(value.flat[0]):g})")
+    return value
 
 
 def _eval(node: ast.AST, x: np.ndarray):
     if isinstance(node, ast.Expression):
         return _eval(node.body, x)
     if isinstance(node, ast.Constant):
-        return np.float64(node.value)
+        return np.float64(float(node.value))
     if isinstance(node, ast.Name):
         return x if node.id == "x" else np.float64(CONSTANTS[node.id])
     if isinstance(node, ast.BinOp):
@@ -118,12 +162,17 @@ def _eval(node: ast.AST, x: np.ndarray):
 
 
 def evaluate(tree: ast.Expression, x: np.ndarray) -> np.ndarray:
-    """Values of a checked formula at the points x (float array of x's shape)."""
-    x = np.asarray(x, dtype=float)
+    """Values of a checked formula at the points x (float array of x's shape).
+
+    Work and memory are bounded by the checks: at most MAX_NODES operations on
+    arrays of x's size, and at most MAX_DEPTH of them alive at once. Values may
+    be inf or nan (e.g. log(x) at x <= 0); the caller judges them."""
+    x = np.array(x, dtype=float)   # a read-only copy: nothing can write into the caller's
+    x.flags.writeable = False
     with np.errstate(all="ignore"):
         try:
             values = _eval(tree, x)
-        except TypeError as exc:
-            raise ExpressionError(f"wrong number of arguments ({exc})") from None
-    values = np.broadcast_to(np.asarray(values, dtype=float), x.shape).copy()
+            values = np.broadcast_to(np.asarray(values, dtype=float), x.shape).copy()
+        except (TypeError, ValueError, OverflowError, ZeroDivisionError) as exc:
+            raise ExpressionError(f"cannot evaluate the formula ({_short(str(exc), 80)})") from None
     return values

@@ -32,7 +32,7 @@ TAIL = 1e-12  # a smooth tail counts as zero below this fraction of the term's h
 class Term(BaseModel):
     """Base of all potential terms."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
     kind: ClassVar[str] = ""
     piecewise_constant: ClassVar[bool] = False
 

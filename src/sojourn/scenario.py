@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import reprlib
 from pathlib import Path
 from typing import Annotated, Any, Literal, Optional, Union
 
@@ -28,7 +29,8 @@ class ScenarioError(SojournError):
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    # YAML reads .nan and .inf as floats: no key of a scenario accepts them
+    model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
 
 
 class GridSpec(_Strict):
@@ -42,6 +44,8 @@ class GridSpec(_Strict):
             raise ValueError("must be two finite numbers [left, right]")
         if span[1] <= span[0]:
             raise ValueError(f"right end must exceed left end (got [{span[0]}, {span[1]}])")
+        if not math.isfinite(span[1] - span[0]):
+            raise ValueError(f"the box [{span[0]:g}, {span[1]:g}] is too long for a float")
         return span
 
     @property
@@ -163,17 +167,47 @@ class _LineLoader(yaml.SafeLoader):
     """Safe loader that remembers the line of every key and list item."""
 
 
-def _compose_lines(node, path, lines):
+class _Duplicate(Exception):
+    def __init__(self, path, line):
+        self.path, self.line = path, line
+
+
+def _compose_lines(node, path, lines, seen=None):
+    """Record the line of every key; visit each node once, so that aliases (which
+    share nodes, possibly in a cycle) cost nothing; refuse a key given twice."""
+    seen = set() if seen is None else seen
     lines.setdefault(path, node.start_mark.line + 1)
+    if id(node) in seen:
+        return
+    seen.add(id(node))
     if isinstance(node, yaml.MappingNode):
+        keys = set()
         for key_node, value_node in node.value:
             key = key_node.value
+            if isinstance(key, str):
+                if key in keys and key != "<<":
+                    raise _Duplicate(path + (key,), key_node.start_mark.line + 1)
+                keys.add(key)
             lines[path + (key,)] = key_node.start_mark.line + 1
-            _compose_lines(value_node, path + (key,), lines)
+            _compose_lines(value_node, path + (key,), lines, seen)
     elif isinstance(node, yaml.SequenceNode):
         for i, item in enumerate(node.value):
             lines[path + (i,)] = item.start_mark.line + 1
-            _compose_lines(item, path + (i,), lines)
+            _compose_lines(item, path + (i,), lines, seen)
+
+
+def _cyclic(data, active=None) -> bool:
+    """True if the data refer to themselves (a YAML alias inside its own anchor)."""
+    active = set() if active is None else active
+    if not isinstance(data, (dict, list)):
+        return False
+    if id(data) in active:
+        return True
+    active.add(id(data))
+    items = data.values() if isinstance(data, dict) else data
+    found = any(_cyclic(item, active) for item in items)
+    active.discard(id(data))
+    return found
 
 
 def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
@@ -190,8 +224,18 @@ def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
     except (RecursionError, MemoryError):
         raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
     lines: dict = {}
-    if node is not None:
-        _compose_lines(node, (), lines)
+    try:
+        if node is not None:
+            _compose_lines(node, (), lines)
+        cyclic = _cyclic(data)
+    except _Duplicate as dup:
+        raise ScenarioError(f"{source}:{dup.line}: {format_path(dup.path)}: key given twice "
+                            "(keep one)") from None
+    except RecursionError:
+        raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
+    if cyclic:
+        raise ScenarioError(f"{source}:1: an alias (*name) refers to itself; a scenario "
+                            "cannot contain itself") from None
     return data, lines
 
 
@@ -253,10 +297,19 @@ def _model_at(loc: tuple):
     return model
 
 
+_REPR = reprlib.Repr()
+_REPR.maxstring, _REPR.maxother, _REPR.maxlevel, _REPR.maxlist, _REPR.maxdict = 60, 60, 2, 4, 4
+
+
+def _short(value) -> str:
+    """A value as the message shows it: a string quoted, anything long cut short."""
+    return _REPR.repr(value)
+
+
 def _describe(error: dict, loc: tuple) -> str:
     kind, ctx = error["type"], error.get("ctx") or {}
     got = error.get("input")
-    shown = repr(got) if isinstance(got, str) else got
+    shown = _short(got)
     if kind == "extra_forbidden":
         model = _model_at(loc)
         valid = list(model.model_fields) if model is not None else []
@@ -281,8 +334,9 @@ def _describe(error: dict, loc: tuple) -> str:
         return f"must be {op} {bound} (got {shown})"
     if kind == "literal_error":
         return f"must be one of {ctx.get('expected', '')} (got {shown})"
-    if kind in ("float_parsing", "float_type", "int_parsing", "int_type", "int_from_float",
-                "finite_number"):
+    if kind == "finite_number":
+        return f"must be a finite number (got {shown})"
+    if kind in ("float_parsing", "float_type", "int_parsing", "int_type", "int_from_float"):
         what = "a whole number" if kind.startswith("int") else "a number"
         return f"must be {what} (got {shown})"
     if kind in ("model_type", "model_attributes_type", "dict_type"):
