@@ -123,7 +123,8 @@ def test_sech2_barrier_transmission():
     assert np.allclose(s.T, T_ref, rtol=1e-6, atol=0)
 
 
-@pytest.mark.parametrize("lam", [1, 2, 3])
+@pytest.mark.parametrize("lam", [1, pytest.param(2, marks=pytest.mark.slow),
+                                 pytest.param(3, marks=pytest.mark.slow)])
 def test_reflectionless_sech2_well(lam):
     # source: I. Kay & H. E. Moses, J. Appl. Phys. 27, 1503 (1956): R = 0 at every energy;
     # the transmission phase Π(k + in/a)/(k − in/a) is from memory (tested here)
