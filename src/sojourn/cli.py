@@ -369,6 +369,88 @@ def add_theory(sub) -> None:
 VERBS.append(add_theory)
 
 
+# ---------------------------------------------------------------------------------------
+# render
+
+
+def _frame_bar(quiet: bool):
+    if quiet:
+        return None, lambda: None
+    from tqdm import tqdm
+    bar = tqdm(unit="frame", file=sys.stderr, dynamic_ncols=True, leave=False, disable=None,
+               desc="encoding")
+
+    def update(done, total):
+        bar.total = total
+        bar.update(done - bar.n)
+
+    return update, bar.close
+
+
+def cmd_render(args) -> int:
+    from . import render
+    if not args.output and not args.figure:
+        raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
+    common = {}
+    if args.xlim:
+        common["xlim"] = render.parse_xlim(args.xlim)
+    if args.style:
+        common["style"] = args.style
+    if args.figure:   # checked first: a bad option fails before a long movie is made
+        fig_opts = render.FigureOptions(log=args.log, **common, **(
+            {"size": render.parse_size(args.size, "in")} if args.size else {}), **(
+            {"dpi": args.dpi} if args.dpi else {}))
+    if args.output:
+        movie = render.MovieOptions(fps=args.fps, **common, **(
+            {"size": render.parse_size(args.size, "px")} if args.size else {}), **(
+            {"curves": render.parse_curves(args.curves)} if args.curves else {}))
+        update, close = _frame_bar(args.quiet)
+        try:
+            path = render.render_movie(args.file, args.output, movie, update)
+        finally:
+            close()
+        _say(f"wrote {path}")
+    if args.figure:
+        _say(f"wrote {render.render_figure(args.file, args.figure, fig_opts)}")
+    return EXIT_OK
+
+
+def add_render(sub) -> None:
+    p = sub.add_parser("render", help="movies (.mp4, .gif) and figures (.png, .pdf, .svg)")
+    p.add_argument("file", help="a run file")
+    p.add_argument("-o", "--output", metavar="MOVIE", help="movie: .mp4 (H.264) or .gif")
+    p.add_argument("--figure", metavar="FIG", help="space-time figure: .png, .pdf or .svg")
+    p.add_argument("--size", help="movie WxH in pixels (default 1920x1080); figure WxH in "
+                                  "inches, or pixels with 'px' (e.g. 2100x1350px)")
+    p.add_argument("--fps", type=float, default=30.0, help="movie frames per second (default 30)")
+    p.add_argument("--style", choices=["talk-dark", "talk-light", "paper"],
+                   help="look (default: talk-dark for movies, paper for figures)")
+    p.add_argument("--xlim", metavar="A:B", help="x range, e.g. --xlim=-300:100 (default: the "
+                                                 "box inside the absorbers)")
+    p.add_argument("--curves", help="movie curves, comma-separated from density, real, imag, "
+                                    "phase, reference, potential (default density,reference,potential)")
+    p.add_argument("--log", action="store_true", help="figure: logarithmic colour scale")
+    p.add_argument("--dpi", type=float, help="figure resolution for PNG (default 300)")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_render)
+
+
+def demo_render(run_path, out_folder, args) -> None:
+    from . import render
+    update, close = _frame_bar(getattr(args, "quiet", False))
+    try:   # 720p keeps the demo quick; talks get 1080p by default
+        movie = render.render_movie(run_path, Path(out_folder) / "demo.mp4",
+                                    render.MovieOptions(size=(1280, 720)), update)
+    finally:
+        close()
+    _say(f"movie      {movie}")
+    _say(f"figure     {render.render_figure(run_path, Path(out_folder) / 'demo.png')}")
+
+
+VERBS.append(add_render)
+DEMO_STEPS.append(demo_render)
+
+
 # bench: this machine's throughput against the FFT limit
 
 

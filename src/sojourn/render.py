@@ -340,15 +340,14 @@ def open_encoder(path: Path, size: tuple[int, int], fps: float, quality: int = 1
                               "and height")
         writer = imageio_ffmpeg.write_frames(
             str(path), size, fps=fps, codec="libx264", pix_fmt_in="rgba", pix_fmt_out="yuv420p",
-            quality=None, macro_block_size=1,
-            output_params=["-crf", str(int(quality)), "-preset", preset,
-                                               "-movflags", "+faststart"])
+            quality=None, macro_block_size=1, ffmpeg_log_level="error",
+            output_params=["-crf", str(int(quality)), "-preset", preset, "-movflags", "+faststart"])
     else:
         palette = "split[a][b];[a]palettegen=stats_mode=single[p];[b][p]paletteuse=new=1"
         writer = imageio_ffmpeg.write_frames(
             str(path), size, fps=fps, codec="gif", pix_fmt_in="rgba", pix_fmt_out="pal8",
-            quality=None,
-            macro_block_size=1, output_params=["-filter_complex", palette, "-loop", "0"])
+            quality=None, macro_block_size=1, ffmpeg_log_level="error",
+            output_params=["-filter_complex", palette, "-loop", "0"])
     writer.send(None)  # start ffmpeg
     return writer
 
@@ -386,7 +385,7 @@ class MovieFrame:
         fig = Figure(figsize=(width / 100, height / 100), dpi=100)
         self.canvas = FigureCanvasAgg(fig)
         self.fig = fig
-        ax = fig.add_axes((0.075, 0.11, 0.85 if "potential" in curves else 0.9, 0.76))
+        ax = fig.add_axes((0.09, 0.11, 0.83 if "potential" in curves else 0.89, 0.73))
         axes = [ax]
         wave = {"real", "imag"} & curves
         top = 1.08 * max(peaks.get("density", 0.0), 1e-300)
@@ -466,8 +465,9 @@ class MovieFrame:
         self.amplitude = math.sqrt(max(peaks.get("density", 0.0), 1e-300))
         if ax2 is not None:
             handles += ax2.get_lines()[:1]
-        legend = ax.legend(handles=handles, loc="upper right", fontsize=0.75 * font,
-                           frameon=False, labelcolor=look.text)
+        legend = ax.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 1.0),
+                           ncol=len(handles), fontsize=0.75 * font, frameon=False,
+                           labelcolor=look.text, handlelength=1.6, columnspacing=1.5)
         legend.set_animated(False)
         self.time_text = ax.text(0.015, 0.95, "", transform=ax.transAxes, color=look.text,
                                  fontsize=font, va="top", ha="left", animated=True,
@@ -540,27 +540,33 @@ def frames(path, options: MovieOptions = MovieOptions()) -> Iterator[np.ndarray]
 def render_movie(path, output, options: MovieOptions = MovieOptions(),
                  progress: Optional[Callable[[int, int], None]] = None) -> Path:
     """Write a movie (.mp4: H.264/yuv420p, .gif) of a run file, one frame per
-    snapshot; `progress(done, total)` is called after each frame."""
+    snapshot; `progress(done, total)` is called after each frame. Every option
+    is checked, and the figure built, before the encoder starts."""
     output = _check_output(Path(output), MOVIE_FORMATS, "movie")
-    if options.fps <= 0 or not math.isfinite(options.fps) or options.fps > 240:
-        raise RenderError(f"--fps {options.fps:g}: choose a rate between 0 and 240")
+    if not math.isfinite(options.fps) or not 0 < options.fps <= 240:
+        raise RenderError(f"--fps {options.fps:g}: choose a rate above 0 and up to 240")
+    if output.suffix.lower() == ".mp4" and (options.size[0] % 2 or options.size[1] % 2):
+        raise RenderError(f"--size {options.size[0]}x{options.size[1]}: H.264 in yuv420p "
+                          "needs an even width and height")
     _look(options.style)
     parse_curves(",".join(options.curves))
     with _open_run(path) as run:
+        facts = run_facts(run)
+        frame = MovieFrame(facts, options, _peaks(run, facts, options))
         total = len(run)
-    writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
-    done = 0
-    try:
-        for image in frames(path, options):
-            writer.send(image)
-            done += 1
-            if progress:
-                progress(done, total)
-    except BaseException:
+        writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
+        done = 0
+        try:
+            for t, psi in run.snapshots():
+                writer.send(frame.draw(t, psi))
+                done += 1
+                if progress:
+                    progress(done, total)
+        except BaseException:
+            writer.close()
+            output.unlink(missing_ok=True)
+            raise
         writer.close()
-        output.unlink(missing_ok=True)
-        raise
-    writer.close()
     return output
 
 
@@ -675,7 +681,7 @@ def _delay_panel(ax, facts: RunFacts, look: Look, font: float, lw: float) -> Non
     for c, (name, part) in enumerate(channels):
         colour = look.density if name == "reflection" else look.real
         if name in curves:
-            ax.plot(energies, curves[name], color=colour, linewidth=lw,
+            ax.plot(energies, curves[name], color=colour, linewidth=lw, gid=f"theory-{name}",
                     label=f"theory τ_{name[0].upper()}(E)")
         wigner = (part.get("theory") or {}).get("wigner")
         if isinstance(wigner, (int, float)) and math.isfinite(wigner):
@@ -703,14 +709,13 @@ def _delay_panel(ax, facts: RunFacts, look: Look, font: float, lw: float) -> Non
     ax.set_title("delays: theory, measured (–: prediction)", fontsize=0.9 * font)
 
 
-def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Path:
-    """Write the space–time figure (PNG at options.dpi, PDF, SVG) of a run file,
-    with a delay panel when the file holds a saved delay analysis."""
+def figure(path, options: FigureOptions = FigureOptions()):
+    """The space–time figure of a run file (a matplotlib Figure on an Agg
+    canvas), with a delay panel when the file holds a saved delay analysis."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.colors import LogNorm, Normalize
     from matplotlib.figure import Figure
 
-    output = _check_output(Path(output), FIGURE_FORMATS, "figure")
     if not (0 < options.dpi <= 2400):
         raise RenderError(f"--dpi {options.dpi:g}: choose 1 to 2400")
     look = _look(options.style)
@@ -740,9 +745,9 @@ def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Pat
     bar.ax.tick_params(colors=look.text, labelsize=0.8 * font)
     t_fine = np.linspace(st.times[0], st.times[-1], 800)
     ax.plot(reference_trajectory(t_fine, facts.packet, facts.reference), t_fine, color="white",
-            linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror")
+            linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror", gid="mirror-trajectory")
     ax.plot(outgoing_trajectory(st, facts), st.times, color=look.trajectory, linewidth=lw,
-            label="measured outgoing centroid")
+            label="measured outgoing centroid", gid="outgoing-centroid")
     ax.axvline(facts.reference, color="white", linewidth=0.5 * lw, alpha=0.6, linestyle=":")
     ax.set_xlim(*st.x_edges)
     ax.set_ylim(*st.t_edges)
@@ -758,6 +763,14 @@ def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Pat
         _delay_panel(ax2, facts, look, font, lw)
         axes.append(ax2)
     _apply_look(fig, axes, look, font)
+    return fig
+
+
+def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Path:
+    """Write the space–time figure of a run file: PNG at options.dpi, PDF or SVG
+    (the page size is options.size in inches)."""
+    output = _check_output(Path(output), FIGURE_FORMATS, "figure")
+    fig = figure(path, options)
     try:
         fig.savefig(output, dpi=options.dpi, facecolor=fig.get_facecolor())
     except OSError as exc:
@@ -768,5 +781,5 @@ def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Pat
 __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "MovieOptions", "FigureOptions", "RenderError",
            "parse_size", "parse_xlim", "parse_curves", "figure_size", "mirror_reference",
            "reference_trajectory", "turning_time", "side_centroid", "energy_spectrum",
-           "render_movie", "render_figure", "frames", "space_time", "outgoing_trajectory",
+           "render_movie", "render_figure", "figure", "frames", "space_time", "outgoing_trajectory",
            "MovieFrame", "run_facts", "open_encoder"]
