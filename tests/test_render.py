@@ -138,7 +138,10 @@ def test_figures_in_each_format_have_the_requested_size(run, tmp_path):
     assert cli.main(["render", str(run), "--figure", str(png), "--size", "800x500px",
                      "--dpi", "200", "--log"]) == 0
     assert iio.imread(png).shape[:2] == (500, 800)
-    assert cli.main(["render", str(run), "--figure", str(pdf), "--size", "4x3"]) == 0
+    movie = tmp_path / "m.gif"   # with a movie too, --size is the movie's, --figure-size the figure's
+    assert cli.main(["render", str(run), "-o", str(movie), "--size", "96x64", "--figure", str(pdf),
+                     "--figure-size", "4x3", "-q"]) == 0
+    assert iio.imread(movie, index=0).shape[:2] == (64, 96)
     box = re.search(rb"/MediaBox\s*\[\s*0 0 ([\d.]+) ([\d.]+)\s*\]", pdf.read_bytes())
     assert box and (float(box[1]), float(box[2])) == (288.0, 216.0)   # 72 pt per inch
     assert cli.main(["render", str(run), "--figure", str(svg), "--size", "4x3"]) == 0
@@ -295,3 +298,41 @@ def test_no_output_and_missing_run_exit_2(run, tmp_path, capsys):
     assert cli.main(["render", str(tmp_path / "none.h5"), "-o", str(tmp_path / "m.mp4")]) == 2
     lines = capsys.readouterr().err.strip().splitlines()
     assert len(lines) == 2 and all(line.startswith("sojourn: error:") for line in lines)
+
+
+TRAP = """\
+title: Test packet in a harmonic trap
+units: atomic
+grid:
+  span: [-100.0, 100.0]
+  points: 256
+potential:
+  - harmonic: {center: 0.0, omega: 0.02}
+packet:
+  center: 30.0
+  width: 5.0
+  wavenumber: 0.0
+evolve:
+  duration: 314.159
+record:
+  every: 15.70795
+"""
+
+
+def test_trapped_packet_shows_its_centroid_and_no_mirror(tmp_path):
+    """A displaced ground state (σ² = ħ/(2mω) = 25) in V = ½mω²x² keeps its shape
+    and its centre follows x₀ cos ωt.
+    # source: Cohen-Tannoudji, Diu, Laloë, Quantum Mechanics, Complement G_V
+    # (coherent states of the harmonic oscillator; complement label from memory)."""
+    scenario = tmp_path / "trap.yaml"
+    scenario.write_text(TRAP)
+    run = tmp_path / "trap.h5"
+    assert cli.main(["run", str(scenario), "-o", str(run), "-q"]) == 0
+    fig = render.figure(run, render.FigureOptions())
+    lines = {line.get_gid(): line for line in fig.axes[0].get_lines()}
+    assert "mirror-trajectory" not in lines
+    x, t = (np.asarray(a, float) for a in lines["centroid"].get_data())
+    np.testing.assert_allclose(x, 30.0 * np.cos(0.02 * t), atol=1e-3)
+    movie = tmp_path / "trap.mp4"
+    assert cli.main(["render", str(run), "-o", str(movie), "--size", "128x72", "-q"]) == 0
+    assert iio2.get_reader(movie).count_frames() == snapshot_count(run)

@@ -396,9 +396,10 @@ def cmd_render(args) -> int:
         common["xlim"] = render.parse_xlim(args.xlim)
     if args.style:
         common["style"] = args.style
+    figure_size = args.figure_size or (args.size if not args.output else None)
     if args.figure:   # checked first: a bad option fails before a long movie is made
         fig_opts = render.FigureOptions(log=args.log, **common, **(
-            {"size": render.parse_size(args.size, "in")} if args.size else {}), **(
+            {"size": render.parse_size(figure_size, "in")} if figure_size else {}), **(
             {"dpi": args.dpi} if args.dpi else {}))
     if args.output:
         movie = render.MovieOptions(fps=args.fps, **common, **(
@@ -420,8 +421,10 @@ def add_render(sub) -> None:
     p.add_argument("file", help="a run file")
     p.add_argument("-o", "--output", metavar="MOVIE", help="movie: .mp4 (H.264) or .gif")
     p.add_argument("--figure", metavar="FIG", help="space-time figure: .png, .pdf or .svg")
-    p.add_argument("--size", help="movie WxH in pixels (default 1920x1080); figure WxH in "
-                                  "inches, or pixels with 'px' (e.g. 2100x1350px)")
+    p.add_argument("--size", help="movie WxH in pixels (default 1920x1080); with --figure "
+                                  "alone, the figure's size (as --figure-size)")
+    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in inches (e.g. 7x4.5), or "
+                                                        "in pixels with 'px' (e.g. 2100x1350px)")
     p.add_argument("--fps", type=float, default=30.0, help="movie frames per second (default 30)")
     p.add_argument("--style", choices=["talk-dark", "talk-light", "paper"],
                    help="look (default: talk-dark for movies, paper for figures)")
@@ -492,6 +495,68 @@ def add_bench(sub) -> None:
 
 
 VERBS.append(add_bench)
+
+
+# ---------------------------------------------------------------------------------------
+# sweep
+
+
+def _sweep_bar(total: int, quiet: bool):
+    if quiet:
+        return None, lambda: None
+    from tqdm import tqdm
+    bar = tqdm(total=total, unit="point", file=sys.stderr, dynamic_ncols=True, desc="sweep")
+
+    def update(done, _total, counts):
+        bar.update(done - bar.n)
+        bar.set_postfix({k: counts[k] for k in ("complete", "skipped", "failed") if k in counts})
+
+    return update, bar.close
+
+
+def cmd_sweep(args) -> int:
+    from . import sweep as sw
+    spec = sw.load_sweep(args.sweep)
+    if args.workers is not None and args.workers < 1:
+        raise UsageError("sojourn sweep: --workers must be at least 1")
+    if args.verify:
+        _warn("--verify: every point is rerun twice more (2× finer grid at Δt/4, about 8× "
+              "its cost; and Δt/2, about 2×) for error bars — this takes about 10× longer")
+    for point in spec.points:
+        if point.error:
+            _warn(f"{point.name} is invalid and will not run: {point.error}")
+    update, close = _sweep_bar(len(spec.points), args.quiet)
+    try:
+        outcome = sw.run_sweep(spec, args.workers, args.scheduler, args.verify, update)
+    except KeyboardInterrupt:
+        close()
+        _warn(f"interrupted; completed points are kept and listed in {spec.output}/table.csv "
+              "(run the same command again to continue)")
+        return EXIT_INTERRUPTED
+    close()
+    for row in outcome.rows:
+        if row["status"] == "failed":
+            _warn(f"{row['point']} failed: {row['error']}")
+    _say(f"{outcome.count('complete')} complete, {outcome.count('skipped')} already done, "
+         f"{outcome.count('failed')} failed of {len(outcome.rows)} points")
+    _say(f"wrote {outcome.table_csv}, {outcome.table_json.name}, {outcome.summary.name}")
+    return EXIT_OK if not outcome.count("failed") else EXIT_FAIL
+
+
+def add_sweep(sub) -> None:
+    p = sub.add_parser("sweep", help="many runs of one scenario with values varied, one table")
+    p.add_argument("sweep", help="a sweep file (YAML: base, vary, pairing, output)")
+    p.add_argument("--workers", type=int, help="local worker processes (default: the number of "
+                                               "cores)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run the points on a Dask cluster (e.g. tcp://127.0.0.1:8786)")
+    p.add_argument("--verify", action="store_true",
+                   help="error bars from two reruns of every point (about 10× slower)")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_sweep)
+
+
+VERBS.append(add_sweep)
 
 
 def main(argv=None) -> int:

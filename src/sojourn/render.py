@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Iterator, Optional
 
@@ -267,6 +267,7 @@ class RunFacts:
     analysis: Optional[dict] = None
     levels: Optional[tuple[float, float]] = None
     scenario: object = field(default=None, repr=False)
+    scattering: bool = True     # a moving packet and an open potential: a mirror applies
 
 
 def run_facts(run: RunFile) -> RunFacts:
@@ -275,16 +276,19 @@ def run_facts(run: RunFile) -> RunFacts:
     x = run.x
     W = run.absorber
     free = x if W is None or not np.any(W == 0) else x[W == 0]
+    info = PacketInfo(**run.packet)
     try:
         scenario = run.scenario()
         title = scenario.title
+        confining = scenario.build_potential().confining
     except SojournError:
-        scenario, title = None, str(attrs.get("title", ""))
+        scenario, title, confining = None, str(attrs.get("title", "")), False
     return RunFacts(title=str(title or attrs.get("title", "")), units=run.units,
                     hbar=float(attrs["hbar"]), mass=float(attrs["mass"]),
-                    packet=PacketInfo(**run.packet), reference=run.reference, x=x, V=run.V,
+                    packet=info, reference=run.reference, x=x, V=run.V,
                     inner=(float(free[0]), float(free[-1])), times=run.times,
-                    analysis=run.analysis(), scenario=scenario)
+                    analysis=run.analysis(), scenario=scenario,
+                    scattering=not confining and info.k0 != 0)
 
 
 def _open_run(path) -> RunFile:
@@ -367,6 +371,8 @@ class MovieFrame:
         from matplotlib.patches import Polygon
 
         self.facts, self.options = facts, options
+        if not facts.scattering:   # a trapped or resting packet has no mirror to compare with
+            options = replace(options, curves=tuple(c for c in options.curves if c != "reference"))
         look = _look(options.style)
         width, height = options.size
         scale = height / 1080
@@ -521,7 +527,7 @@ def _peaks(run: RunFile, facts: RunFacts, options: MovieOptions) -> dict:
     for t, psi in run.snapshots():
         p = psi[inside]
         top = max(top, float(np.max(p.real ** 2 + p.imag ** 2)))
-        if "reference" in options.curves:
+        if "reference" in options.curves and facts.scattering:
             ref = mirror_reference(xs, t, facts.packet, facts.reference, facts.hbar, facts.mass)
             top = max(top, float(np.max(ref.real ** 2 + ref.imag ** 2)))
     return {"density": top}
@@ -590,7 +596,8 @@ def space_time(run: RunFile, facts: RunFacts, window: tuple[float, float],
                columns: int = MAP_COLUMNS, rows: int = MAP_ROWS) -> SpaceTime:
     """Bin |ψ|² in x (block means) and t (snapshots per row averaged), reading
     snapshots one at a time; also the probability and centroid of the incident
-    side of the mirror (inside the absorbers) per snapshot."""
+    side of the mirror (inside the absorbers; the whole box when no mirror
+    applies) per snapshot."""
     x, times = facts.x, facts.times
     dx = float(x[1] - x[0])
     keep = np.nonzero((x >= window[0]) & (x <= window[1]))[0]
@@ -604,7 +611,8 @@ def space_time(run: RunFile, facts: RunFacts, window: tuple[float, float],
     image = np.zeros((nrow, ncol))
     counts = np.zeros(nrow)
     side = incident_side(facts.packet)
-    bounds = (facts.inner[0], facts.reference) if side < 0 else (facts.reference, facts.inner[1])
+    bounds = facts.inner if not facts.scattering else (
+        (facts.inner[0], facts.reference) if side < 0 else (facts.reference, facts.inner[1]))
     prob = np.empty(len(times))
     cent = np.empty(len(times))
     for i, (_, psi) in enumerate(run.snapshots()):
@@ -743,12 +751,17 @@ def figure(path, options: FigureOptions = FigureOptions()):
     bar = fig.colorbar(mesh, ax=ax, pad=0.01)
     bar.set_label(f"|ψ|² (1/{u['length']})", color=look.text, fontsize=font)
     bar.ax.tick_params(colors=look.text, labelsize=0.8 * font)
-    t_fine = np.linspace(st.times[0], st.times[-1], 800)
-    ax.plot(reference_trajectory(t_fine, facts.packet, facts.reference), t_fine, color="white",
-            linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror", gid="mirror-trajectory")
-    ax.plot(outgoing_trajectory(st, facts), st.times, color=look.trajectory, linewidth=lw,
-            label="measured outgoing centroid", gid="outgoing-centroid")
-    ax.axvline(facts.reference, color="white", linewidth=0.5 * lw, alpha=0.6, linestyle=":")
+    if facts.scattering:
+        t_fine = np.linspace(st.times[0], st.times[-1], 800)
+        ax.plot(reference_trajectory(t_fine, facts.packet, facts.reference), t_fine,
+                color="white", linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror",
+                gid="mirror-trajectory")
+        ax.plot(outgoing_trajectory(st, facts), st.times, color=look.trajectory, linewidth=lw,
+                label="measured outgoing centroid", gid="outgoing-centroid")
+        ax.axvline(facts.reference, color="white", linewidth=0.5 * lw, alpha=0.6, linestyle=":")
+    else:       # trapped or at rest: the packet's centroid is the trajectory to show
+        ax.plot(st.side_centroid, st.times, color=look.trajectory, linewidth=lw,
+                label="centroid ⟨x⟩", gid="centroid")
     ax.set_xlim(*st.x_edges)
     ax.set_ylim(*st.t_edges)
     ax.set_xlabel(f"x ({u['length']})")
