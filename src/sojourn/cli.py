@@ -508,8 +508,9 @@ def _sweep_bar(total: int, quiet: bool):
     bar = tqdm(total=total, unit="point", file=sys.stderr, dynamic_ncols=True, desc="sweep")
 
     def update(done, _total, counts):
+        bar.set_postfix({k: counts[k] for k in ("complete", "skipped", "failed") if k in counts},
+                        refresh=False)
         bar.update(done - bar.n)
-        bar.set_postfix({k: counts[k] for k in ("complete", "skipped", "failed") if k in counts})
 
     return update, bar.close
 
