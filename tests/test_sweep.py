@@ -1,0 +1,303 @@
+"""Sweeps: sweep-file validation, a four-point energy sweep of a unit step
+against published theory, failing points, restarts, a Dask cluster, the lock.
+
+The runs use ħ = m = V₀ = 1 (atomic units), σ = 20 and the box and grid of the
+delay tests at their coarse level (N = 2048 over 576, Δx = 0.28, the step
+midway between grid points, Δt·(E_max + V₀)/ħ = 2.5 < π).
+"""
+import json
+import math
+import shutil
+import textwrap
+
+import numpy as np
+import pytest
+from scipy.integrate import quad
+
+from sojourn import cli
+from sojourn.scenario import ScenarioError
+from sojourn.sweep import (METHODS, SweepError, folder_lock, load_sweep, loads_sweep,
+                           run_sweep)
+
+SIGMA = 20.0
+SIGMA_K = 1 / (2 * SIGMA)
+ENERGIES = [0.2, 0.35, 0.5, 0.65]
+
+BASE = """\
+units: atomic
+grid: {span: [-500.203125, 75.796875], points: 2048}
+potential:
+  - step: {at: 0.0, height: 1.0}
+packet: {center: -200.0, width: 20.0, energy: 0.5}
+evolve: {duration: 500.0, dt: 0.0394411}
+record: {every: 10.0}
+measure: {detectors: [-100.0], reference: 0.0}
+"""
+
+
+def durations(energies):
+    # long enough for the reflected packet to clear the detector, short enough to
+    # stay in the box: 500/v₀ (the delay tests' choice)
+    return [round(500 / math.sqrt(2 * e), 3) if e > 0 else 500.0 for e in energies]
+
+
+def sweep_text(energies, output="out"):
+    return textwrap.dedent(f"""\
+        base: base.yaml
+        vary:
+          packet.energy: {energies}
+          evolve.duration: {durations(energies)}
+        pairing: zip
+        output: {output}
+        """)
+
+
+def step_delay(E, V0=1.0):
+    # source: τ_R = ħ/√(E(V₀−E)) relative to an ideal mirror at the step, from
+    # r = −e^{2iδ}, δ = arctan√(E/(V₀−E)) (Griffiths, Introduction to QM, 2nd ed.,
+    # Problem 2.34; Wigner, Phys. Rev. 98, 145 (1955) for τ = ħ dφ/dE)
+    return 1 / math.sqrt(E * (V0 - E))
+
+
+def published_averages(E0):
+    """The step's τ(E) averaged over the packet as each method measures it
+    (PHYSICS §5: centroid ⟨dφ/dk⟩/v₀, flux and spectral ⟨τ⟩ with R = 1), by
+    scipy quadrature over k₀ ± 8σ_k."""
+    k0 = math.sqrt(2 * E0)
+    g = lambda k: math.exp(-0.5 * ((k - k0) / SIGMA_K) ** 2)
+    lo, hi = k0 - 8 * SIGMA_K, k0 + 8 * SIGMA_K
+    avg = lambda f: (quad(lambda k: f(k) * g(k), lo, hi, epsabs=0, epsrel=1e-12, limit=200)[0]
+                     / quad(g, lo, hi, epsabs=0, epsrel=1e-12, limit=200)[0])
+    tau = lambda k: step_delay(k * k / 2)
+    flux = avg(tau)
+    return {"centroid": avg(lambda k: k * tau(k)) / k0, "arrival": flux, "spectral": flux}
+
+
+@pytest.fixture(scope="module")
+def folder(tmp_path_factory):
+    path = tmp_path_factory.mktemp("sweep")
+    (path / "base.yaml").write_text(BASE)
+    # four valid energies and one invalid one (E₀ must be > 0)
+    (path / "sweep.yaml").write_text(sweep_text(ENERGIES[:2] + [-0.1] + ENERGIES[2:]))
+    return path
+
+
+@pytest.fixture(scope="module")
+def local(folder):
+    sweep = load_sweep(folder / "sweep.yaml")
+    events = []
+    outcome = run_sweep(sweep, workers=2, progress=lambda *a: events.append(a))
+    return sweep, outcome, events
+
+
+# ----------------------------------------------------------------------------------------
+# The table against theory
+
+
+def test_table_matches_the_published_step_delay(local):
+    sweep, outcome, _ = local
+    rows = [r for r in outcome.rows if r["status"] == "complete"]
+    assert [r["packet.energy"] for r in rows] == ENERGIES
+    for row in rows:
+        E0 = row["packet.energy"]
+        own = published_averages(E0)
+        assert row["reflection_delay_wigner"] == pytest.approx(step_delay(E0), rel=1e-9)
+        assert row["reflection_delay_packet"] == pytest.approx(own["arrival"], rel=1e-6)
+        assert row["R"] == pytest.approx(1.0, abs=1e-6)
+        for method in METHODS:
+            measured = row[f"reflection_delay_{method}"]
+            predicted = row[f"reflection_predicted_{method}"]
+            # the table's prediction is the published τ(E) with its bandwidth correction
+            assert predicted == pytest.approx(own[method], rel=1e-6), (E0, method)
+            # One run on this grid carries the sharp step's Δx² error (PHYSICS §3),
+            # measured here 0.6e-3 to 7e-3 of the delay (largest at E₀ = 0.2); the
+            # delay tests reach 5e-4 only by Richardson over N and 2N, which would
+            # cost 5× this sweep. So each delay is held to 1e-2 ...
+            assert measured == pytest.approx(predicted, rel=1e-2), (E0, method)
+        # ... and the differences between methods, where that error cancels (the
+        # same wave function), to the delay tests' 5e-4 of the delay; the
+        # differences themselves are up to 1.2e-3 of it (PHYSICS §5), so a method
+        # compared with another method's prediction fails where they differ.
+        for method in ("arrival", "spectral"):
+            gap = row[f"reflection_delay_{method}"] - row["reflection_delay_centroid"]
+            expected = own[method] - own["centroid"]
+            assert abs(gap - expected) <= 5e-4 * own["centroid"], (E0, method)
+    gap_at_fifth = published_averages(0.2)
+    assert gap_at_fifth["arrival"] - gap_at_fifth["centroid"] > 1e-3 * gap_at_fifth["centroid"]
+
+
+def test_invalid_point_fails_alone_with_its_error(local):
+    _, outcome, _ = local
+    failed = [r for r in outcome.rows if r["status"] == "failed"]
+    assert len(failed) == 1 and outcome.count("complete") == 4
+    bad = failed[0]
+    assert bad["packet.energy"] == -0.1
+    assert "packet.energy" in bad["error"] and "must be > 0" in bad["error"]
+    assert "\n" not in bad["error"]
+    assert bad["R"] is None and bad["reflection_delay_centroid"] is None
+
+
+def test_table_files_and_figure(local, folder):
+    sweep, outcome, events = local
+    out = folder / "out"
+    lines = (out / "table.csv").read_text().splitlines()
+    assert lines[0].startswith("#") and "units" in lines[0] and "hbar/E_h" in lines[0]
+    header = lines[1].split(",")
+    assert header[:3] == ["point", "packet.energy", "evolve.duration"]
+    for column in ("R", "T", "reflection_delay_wigner", "reflection_delay_packet", "status",
+                   "error", *(f"reflection_{w}_{m}" for w in ("delay", "predicted")
+                              for m in METHODS)):
+        assert column in header
+    assert not any(c.startswith("reflection_error_") for c in header)   # no --verify
+    assert len(lines) == 2 + 5
+    table = json.loads((out / "table.json").read_text())
+    assert table["units"]["time"] == "hbar/E_h" and len(table["rows"]) == 5
+    assert table["rows"] == outcome.rows
+    for name in ("point-000.h5", "point-000.yaml", "point-000.json", "point-004.h5"):
+        assert (out / name).exists()
+    assert not (out / "point-002.h5").exists()      # the invalid point never ran
+    assert (out / "summary.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # the progress callback saw every point, with counts by status
+    assert events[-1][0] == events[-1][1] == 5
+    assert events[-1][2] == {"complete": 4, "failed": 1}
+
+
+def test_second_invocation_skips_complete_points(local, folder):
+    sweep, first, _ = local
+    out = folder / "out"
+    runs = sorted(out.glob("point-*.h5"))
+    before = {p.name: p.stat().st_mtime_ns for p in runs}
+    again = run_sweep(load_sweep(folder / "sweep.yaml"), workers=2)
+    assert {p.name: p.stat().st_mtime_ns for p in runs} == before
+    assert [r["status"] for r in again.rows] == ["skipped"] * 2 + ["failed"] + ["skipped"] * 2
+    for a, b in zip(first.rows, again.rows):
+        assert {k: v for k, v in a.items() if k != "status"} == \
+            {k: v for k, v in b.items() if k != "status"}
+
+
+def test_dask_cluster_gives_the_same_table(local, folder):
+    distributed = pytest.importorskip("distributed")
+    _, outcome, _ = local
+    text = (folder / "sweep.yaml").read_text().replace("output: out", "output: on-dask")
+    (folder / "dask.yaml").write_text(text)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  host="127.0.0.1", dashboard_address=None) as cluster:
+        on_dask = run_sweep(load_sweep(folder / "dask.yaml"), scheduler=cluster.scheduler_address)
+    assert on_dask.columns == outcome.columns
+    for a, b in zip(outcome.rows, on_dask.rows):
+        assert a["status"] == b["status"]
+        for column in outcome.columns:
+            if isinstance(a[column], float):
+                assert b[column] == pytest.approx(a[column], rel=1e-12, abs=1e-12), column
+            else:
+                assert a[column] == b[column], column
+    assert (folder / "on-dask" / "point-004.h5").exists()
+
+
+def test_lock_refuses_a_concurrent_sweep(local, folder, capsys):
+    out = folder / "out"
+    with folder_lock(out):
+        with pytest.raises(SweepError, match="another sweep is running"):
+            run_sweep(load_sweep(folder / "sweep.yaml"), workers=1)
+        assert cli.main(["sweep", str(folder / "sweep.yaml"), "-q"]) == 2
+    err = capsys.readouterr().err
+    assert "another sweep is running" in err and "Traceback" not in err
+    assert len([line for line in err.splitlines() if line.startswith("sojourn: error")]) == 1
+
+
+def test_cli_reports_skipped_points(local, folder, capsys):
+    assert cli.main(["sweep", str(folder / "sweep.yaml"), "-q"]) == 1   # one point failed
+    out = capsys.readouterr().out
+    assert "0 complete, 4 already done, 1 failed of 5 points" in out
+
+
+# ----------------------------------------------------------------------------------------
+# Sweep-file validation (nothing runs)
+
+
+@pytest.fixture
+def base_dir(tmp_path):
+    (tmp_path / "base.yaml").write_text(BASE)
+    return tmp_path
+
+
+def check_error(base_dir, text, expected):
+    with pytest.raises(ScenarioError) as info:
+        loads_sweep(textwrap.dedent(text), "sw.yaml", base_dir)
+    message = str(info.value)
+    assert message.startswith(expected), message
+    assert "\n" not in message
+    return message
+
+
+def test_unknown_key_is_named_with_a_suggestion(base_dir):
+    check_error(base_dir, """\
+        base: base.yaml
+        vary: {packet.energy: [0.2]}
+        ouput: out
+        """, "sw.yaml:3: ouput: unknown key; did you mean 'output'?")
+
+
+def test_varied_path_must_exist_in_the_base(base_dir):
+    message = check_error(base_dir, """\
+        base: base.yaml
+        vary:
+          packet.energy: [0.2]
+          packet.enrgy: [0.3]
+        output: out
+        """, "sw.yaml:4: vary.packet.enrgy: no key 'packet.enrgy'")
+    assert "did you mean 'packet.energy'?" in message
+    check_error(base_dir, """\
+        base: base.yaml
+        vary: {potential.3.step.height: [1.0, 2.0]}
+        output: out
+        """, "sw.yaml:2: vary.potential.3.step.height: 'potential.3': potential is a list of 1")
+    check_error(base_dir, """\
+        base: base.yaml
+        vary: {grid: [1, 2]}
+        output: out
+        """, "sw.yaml:2: vary.grid: 'grid' is a whole section")
+
+
+def test_zip_needs_equal_lengths_and_product_combines(base_dir):
+    check_error(base_dir, """\
+        base: base.yaml
+        vary:
+          packet.energy: [0.2, 0.3]
+          packet.width: [20.0]
+        pairing: zip
+        output: out
+        """, "sw.yaml:5: pairing: zip pairs the i-th values")
+    sweep = loads_sweep(textwrap.dedent("""\
+        base: base.yaml
+        vary:
+          packet.energy: [0.2, 0.3]
+          evolve.dt: [0.02, 0.01, 0.005]
+        output: out
+        """), "sw.yaml", base_dir)
+    # evolve.dt is not in the base file but is a key of its evolve section
+    assert [p.values for p in sweep.points][:2] == [
+        {"packet.energy": 0.2, "evolve.dt": 0.02}, {"packet.energy": 0.2, "evolve.dt": 0.01}]
+    assert len(sweep.points) == 6 and all(p.error is None for p in sweep.points)
+    assert sweep.points[5].scenario.evolve.dt == 0.005
+    assert sweep.points[5].scenario.packet.energy == 0.3
+    assert sweep.output == base_dir / "out"
+
+
+def test_missing_base_and_wrong_types(base_dir):
+    check_error(base_dir, "base: nowhere.yaml\nvary: {packet.energy: [0.2]}\noutput: out\n",
+                "sw.yaml:1: base: no scenario file at")
+    check_error(base_dir, "base: base.yaml\nvary: {packet.energy: 0.2}\noutput: out\n",
+                "sw.yaml:2: vary.packet.energy: must be a non-empty list")
+    check_error(base_dir, "base: base.yaml\nvary: {packet.energy: [0.2]}\n",
+                "sw.yaml:1: (top level): required key 'output' is missing")
+    check_error(base_dir, "base: base.yaml\nvary: {packet.energy: [0.2]}\noutput: o\n"
+                          "pairing: cross\n", "sw.yaml:4: pairing: must be one of product | zip")
+
+
+def test_cli_bad_sweep_file_exits_2(base_dir, capsys):
+    (base_dir / "bad.yaml").write_text("base: base.yaml\nvary: {packet.speed: [1]}\noutput: o\n")
+    assert cli.main(["sweep", str(base_dir / "bad.yaml")]) == 2
+    err = capsys.readouterr().err
+    assert "bad.yaml:2: vary.packet.speed: no key 'packet.speed'" in err
+    assert "Traceback" not in err
