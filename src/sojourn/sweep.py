@@ -616,7 +616,8 @@ def plot_summary(sweep: Sweep, rows: list, path: Path) -> None:
     channels = [c for c in CHANNELS if rows and f"{c}_delay_wigner" in rows[0]]
     fig, axes = plt.subplots(len(channels) or 1, 1, figsize=(7.5, 4.2 * max(len(channels), 1)),
                              squeeze=False, constrained_layout=True)
-    others = sweep.keys[1:]
+    # zip ties the other keys to the first: one series; a product: one per combination
+    others = sweep.keys[1:] if sweep.pairing == "product" else ()
     groups: dict = {}
     for row, point in zip(rows, sweep.points):
         label = ", ".join(f"{k} = {_label(row[k])}" for k in others)
@@ -633,13 +634,15 @@ def plot_summary(sweep: Sweep, rows: list, path: Path) -> None:
             done = [(r, p) for r, p in members if r["status"] in ("complete", "skipped")]
             x = np.array([_number(r[key]) for r, _ in done])
             order = np.argsort(x)
-            suffix = f" ({label})" if label else ""
             style = ["-", "--", ":", "-."][g % 4]
-            if energy_sweep and done:
+            first = g == 0
+            if energy_sweep and len(done) > 1:
                 curve = _theory_curve(done[0][1].scenario, channel, x)
                 if curve is not None:
                     ax.plot(*curve, color="k", lw=1.2, ls=style,
-                            label=f"phase delay τ(E){suffix}")
+                            label="phase delay τ(E)" + (f" ({label})" if label else ""))
+            elif label:
+                ax.plot([], [], color="k", ls=style, label=label)
             for method in METHODS:
                 y = np.array([_number(r.get(f"{channel}_delay_{method}")) for r, _ in done])
                 pred = np.array([_number(r.get(f"{channel}_predicted_{method}")) for r, _ in done])
@@ -649,13 +652,14 @@ def plot_summary(sweep: Sweep, rows: list, path: Path) -> None:
                 ax.errorbar(x[order], y[order],
                             yerr=err[order] if np.isfinite(err).any() else None,
                             fmt=markers[method], color=colours[method], ms=6, capsize=3, ls="none",
-                            label=f"{method}{suffix}")
-                if energy_sweep:
-                    ax.plot(x[order], pred[order], ls="none", marker="_", ms=14,
-                            color=colours[method], label=f"{method} prediction{suffix}")
+                            mfc="none", label=f"{method} (measured)" if first else None)
+                if energy_sweep:   # each point's own packet average: a tick at the point
+                    ax.plot(x[order], pred[order], ls="none", marker="_", ms=16, mew=1.5,
+                            color=colours[method], label=f"{method} (packet theory)" if first
+                            else None)
                 else:
                     ax.plot(x[order], pred[order], ls=style, color=colours[method], lw=1,
-                            label=f"{method} prediction{suffix}")
+                            label=f"{method} (packet theory)" if first else None)
         unit = u["energy"] if energy_sweep else ""
         ax.set_xlabel(f"{key}" + (f" [{unit}]" if unit else ""))
         ax.set_ylabel(f"{channel} delay [{u['time']}]")
