@@ -18,7 +18,7 @@ total energies, in the scenario's units.
 
 Method. A potential is a sequence of constant layers (exact for piecewise
 constant potentials, with delta terms as jumps of ψ' at an interface;
-midpoint slicing with Richardson extrapolation for smooth ones). The solver
+midpoint slicing with Romberg extrapolation in h² for smooth ones). The solver
 recurs the local reflection ratio ρ from the right to the left: through an
 evanescent layer ρ is multiplied by e^{−2κd}, so the recursion never grows and
 opaque barriers stay exact (this is the S-matrix composition written for one
@@ -40,7 +40,8 @@ from .scenario import SojournError
 __all__ = [
     "TheoryError", "Layers", "Scattering", "ChannelPrediction", "PacketPrediction",
     "layers_from_potential", "scatter", "scatter_scenario", "stationary_state",
-    "packet_prediction", "synthesize", "initial_packet", "default_energies",
+    "packet_prediction", "packet_kinematics", "synthesize", "initial_packet", "grid_points",
+    "default_energies",
     "parse_energies", "theory_table", "format_table", "table_csv", "plot_theory",
 ]
 
