@@ -301,3 +301,47 @@ def test_cli_bad_sweep_file_exits_2(base_dir, capsys):
     err = capsys.readouterr().err
     assert "bad.yaml:2: vary.packet.speed: no key 'packet.speed'" in err
     assert "Traceback" not in err
+
+
+# ----------------------------------------------------------------------------------------
+# Interruption
+
+
+def test_points_do_not_begin_after_an_interrupt(base_dir):
+    from sojourn.sweep import STOP_NAME, _task, run_point
+    sweep = loads_sweep("base: base.yaml\nvary: {packet.energy: [0.2]}\noutput: out\n",
+                        "sw.yaml", base_dir)
+    sweep.output.mkdir()
+    (sweep.output / STOP_NAME).touch()
+    result = run_point(_task(sweep, sweep.points[0], sweep.output, False))
+    assert result["status"] == "interrupted"
+    assert not list(sweep.output.glob("point-000.*"))
+
+
+@pytest.mark.slow
+def test_ctrl_c_keeps_completed_points_and_the_next_run_finishes(tmp_path):
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    (tmp_path / "base.yaml").write_text(BASE)
+    (tmp_path / "sweep.yaml").write_text(sweep_text(ENERGIES))
+    out = tmp_path / "out"
+    proc = subprocess.Popen([sys.executable, "-m", "sojourn", "sweep", str(tmp_path / "sweep.yaml"),
+                             "--workers", "2", "-q"], start_new_session=True,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 300
+    while not list(out.glob("point-*.json")) and time.monotonic() < deadline:
+        time.sleep(0.1)
+    os.killpg(proc.pid, signal.SIGINT)      # as a terminal's Ctrl-C: the whole group
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 130 and "Traceback" not in err
+    rows = json.loads((out / "table.json").read_text())["rows"]
+    done = {r["point"] for r in rows if r["status"] == "complete"}
+    assert done and len(done) < 4
+    mtimes = {p: (out / f"{p}.h5").stat().st_mtime_ns for p in done}
+    again = run_sweep(load_sweep(tmp_path / "sweep.yaml"), workers=2)
+    assert {p: (out / f"{p}.h5").stat().st_mtime_ns for p in done} == mtimes
+    assert {r["point"]: r["status"] for r in again.rows} == {
+        r["point"]: ("skipped" if r["point"] in done else "complete") for r in rows}

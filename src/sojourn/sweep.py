@@ -43,6 +43,7 @@ PAIRINGS = ("product", "zip")
 METHODS = ("centroid", "arrival", "spectral")     # the delay methods of `measure`
 CHANNELS = ("reflection", "transmission")
 LOCK_NAME = ".sweep.lock"
+STOP_NAME = ".sweep.stop"      # present while an interrupted sweep stops its workers
 TABLE_CSV, TABLE_JSON, SUMMARY_PNG = "table.csv", "table.json", "summary.png"
 RESULT_FORMAT = "sojourn.sweep-point"
 
@@ -237,6 +238,8 @@ def run_point(task: dict) -> dict:
     result = {"format": RESULT_FORMAT, "point": name, "fingerprint": task["fingerprint"],
               "values": task["values"], "status": "failed", "error": None,
               "verified": bool(task["verify"])}
+    if (folder / STOP_NAME).exists():   # the sweep was interrupted before this point began
+        return {**result, "status": "interrupted", "error": "interrupted"}
     try:
         result.update(_run_and_measure(task, folder, name))
         result["status"] = "complete"
@@ -348,6 +351,8 @@ def run_sweep(sweep: Sweep, workers: Optional[int] = None, scheduler: Optional[s
     out = sweep.output
     out.mkdir(parents=True, exist_ok=True)
     with folder_lock(out):
+        stop = out / STOP_NAME
+        stop.unlink(missing_ok=True)
         results: dict[int, dict] = {}
         todo = []
         for point in sweep.points:
@@ -379,6 +384,8 @@ def run_sweep(sweep: Sweep, workers: Optional[int] = None, scheduler: Optional[s
                     _run_locally(tasks, workers or os.cpu_count() or 1, report)
         except KeyboardInterrupt:
             interrupted = True
+        finally:
+            stop.unlink(missing_ok=True)
         outcome = write_results(sweep, results, verify)
         outcome.interrupted = interrupted or any(
             r["status"] == "interrupted" for r in results.values())
@@ -479,6 +486,7 @@ def _run_locally(tasks: list, workers: int, report) -> None:
                 task = pending.pop(future)
                 report(task["index"], _result_of(future, task))
     except KeyboardInterrupt:
+        _stop(tasks)
         for future in pending:
             future.cancel()
         pool.shutdown(wait=True, cancel_futures=True)
@@ -488,6 +496,12 @@ def _run_locally(tasks: list, workers: int, report) -> None:
         raise
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _stop(tasks: list) -> None:
+    """Tell the workers not to begin queued points (they check for the stop file)."""
+    if tasks:
+        (Path(tasks[0]["folder"]) / STOP_NAME).touch()
 
 
 def _result_of(future, task: dict) -> dict:
@@ -520,6 +534,7 @@ def _run_on_dask(address: str, tasks: list, report) -> None:
             task = by_key[future.key]
             report(task["index"], _result_of(future, task))
     except KeyboardInterrupt:
+        _stop(tasks)
         client.cancel(futures)
         raise
     finally:
