@@ -137,6 +137,8 @@ def build(scenario: Scenario) -> Setup:
                                 f"V is not finite (nan or inf) at x = {bad:g}"))
         V = np.nan_to_num(V, nan=0.0, posinf=0.0, neginf=0.0)
     level = float(potential(np.array([scenario.packet.center]))[0])
+    if not math.isfinite(level):
+        level = 0.0   # the finding above refuses the run; describe the packet all the same
     try:
         info = packets.describe(scenario.packet, hbar, mass, level)
     except ValueError as exc:
@@ -145,6 +147,10 @@ def build(scenario: Scenario) -> Setup:
     # time step
     kinetic_max = grid.kinetic_max(hbar, mass)
     v_range = float(np.ptp(V))
+    if not (math.isfinite(kinetic_max + v_range) and kinetic_max > 0):
+        raise ScenarioError(f"{scenario.source}: grid.points: the grid's largest kinetic "
+                            f"energy ħ²k_max²/2m = {kinetic_max:g} plus the range of V "
+                            f"({v_range:g}) is not a usable number; check mass, grid and potential")
     limit = time_step_limit(kinetic_max, v_range, hbar)
     if scenario.evolve.dt is None:
         dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
@@ -153,6 +159,7 @@ def build(scenario: Scenario) -> Setup:
     else:
         dt, dt_chosen = scenario.evolve.dt, False
     duration = scenario.evolve.duration
+    _refuse_endless(scenario, duration / dt if dt > 0 else math.inf, dt)
     steps = max(1, int(math.ceil(duration / dt - 1e-9)))
     dt = duration / steps  # the run ends exactly at the duration (dt shrinks, if at all, by < 1 step)
     every = scenario.record.every or duration / 100
@@ -207,6 +214,17 @@ def _refuse_oversized(scenario: Scenario) -> None:
     if available and memory > 0.8 * available:
         raise ScenarioError(f"{scenario.source}: grid.points: {scenario.grid.points} points need "
                             f"about {_size(memory)} of memory; this machine has {_size(available)}")
+
+
+MAX_STEPS = 10 ** 12   # about a year of steps at a microsecond each (common practice, no source)
+
+
+def _refuse_endless(scenario: Scenario, steps: float, dt: float) -> None:
+    """Refuse a run that could never finish, before any loop is planned."""
+    if not math.isfinite(steps) or steps > MAX_STEPS:
+        raise ScenarioError(f"{scenario.source}: evolve.dt: duration {scenario.evolve.duration:g} "
+                            f"at dt = {dt:g} is {steps:.3g} steps, more than {MAX_STEPS:.0e}; "
+                            "use a larger dt or a shorter duration")
 
 
 def _guard(s: Setup, limit: float, absorber_width: float) -> None:

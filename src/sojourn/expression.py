@@ -108,6 +108,11 @@ def parse(text: str) -> ast.Expression:
         raise ExpressionError("a formula must be a string")
     if len(text) > MAX_LENGTH:
         raise ExpressionError(f"formula longer than {MAX_LENGTH} characters")
+    if not text.isascii():
+        # Python folds look-alike letters (NFKC: 'ℯ' is 'e', 'ｘ' is 'x'): refuse them all
+        where = next(i for i, c in enumerate(text) if not c.isascii())
+        raise ExpressionError(f"only plain ASCII is allowed in a formula (found "
+                              f"{text[where]!r} at character {where + 1})")
     if text.count("(") > MAX_DEPTH:
         raise ExpressionError(f"more than {MAX_DEPTH} parentheses")
     try:

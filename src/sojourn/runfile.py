@@ -8,6 +8,7 @@ overwritten unless asked.
 from __future__ import annotations
 
 import datetime as _dt
+import fcntl
 import json
 import os
 import platform
@@ -34,8 +35,52 @@ class RunFileError(SojournError):
     """A run file that cannot be written or read as asked."""
 
 
+def _one_line(exc, limit: int = 160) -> str:
+    """An h5py/HDF5 message (which may span lines) as one short line."""
+    text = " ".join(str(exc).split())
+    return text if len(text) <= limit else text[:limit] + "..."
+
+
 def partial_path(path: Path) -> Path:
     return path.with_name(path.name + ".partial")
+
+
+def lock_path(path: Path) -> Path:
+    return path.with_name(path.name + ".lock")
+
+
+class WriteLock:
+    """An exclusive lock (fcntl.flock on NAME.h5.lock) held while a run writes
+    NAME.h5: a second writer of the same output is refused, not interleaved."""
+
+    def __init__(self, final: Path):
+        self.path = lock_path(final)
+        while True:
+            handle = open(self.path, "a+")
+            try:
+                fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                handle.close()
+                raise RunFileError(f"another run is writing {final} (it holds {self.path}); "
+                                   "wait for it to finish, or choose another output with -o") \
+                    from None
+            try:   # the holder before us may have removed the file: lock the one on disk
+                same = os.fstat(handle.fileno()).st_ino == os.stat(self.path).st_ino
+            except FileNotFoundError:
+                same = False
+            if same:
+                self.handle = handle
+                return
+            handle.close()
+
+    def release(self) -> None:
+        if self.handle is not None and not self.handle.closed:
+            try:
+                os.unlink(self.path)
+            except FileNotFoundError:
+                pass
+            self.handle.close()   # closing releases the lock
+        self.handle = None
 
 
 def provenance(backend: str) -> dict:
@@ -72,8 +117,10 @@ class RunWriter:
     """Writes one run. Use `open_new` or `open_resume`, then `snapshot(...)`
     per recording and `finish()` (or `close(status)` on interruption)."""
 
-    def __init__(self, handle: h5py.File, final: Path):
+    def __init__(self, handle: h5py.File, final: Path, lock: Optional[WriteLock] = None):
         self.h5 = handle
+        self.lock = lock
+        self._failing = False
         self.final = final
         self.partial = Path(handle.filename)
         # dataset handles, looked up once (a lookup costs more than a small write)
@@ -93,21 +140,32 @@ class RunWriter:
         if final.exists() and not overwrite:
             raise RunFileError(f"{final} exists; a result is never overwritten "
                                "(use --overwrite to replace it, or -o for another name)")
-        if partial.exists() and not overwrite:
-            raise RunFileError(f"{partial} holds an unfinished run; continue it with --resume "
-                               "or start again with --overwrite")
         try:
             final.parent.mkdir(parents=True, exist_ok=True)
-            handle = h5py.File(partial, "w", libver="latest")
-        except (OSError, BlockingIOError) as exc:
-            raise RunFileError(f"cannot create {partial}: {exc}") from None
+        except OSError as exc:
+            raise RunFileError(f"cannot create the folder {final.parent}: {exc}") from None
+        lock = WriteLock(final)
         try:
-            cls._layout(handle, setup, backend, compress)
-            handle.swmr_mode = True
-        except Exception:
-            handle.close()
+            if final.exists() and not overwrite:   # finished while we waited for the lock
+                raise RunFileError(f"{final} exists; a result is never overwritten "
+                                   "(use --overwrite to replace it, or -o for another name)")
+            if partial.exists() and not overwrite:
+                raise RunFileError(f"{partial} holds an unfinished run; continue it with "
+                                   "--resume or start again with --overwrite")
+            try:
+                handle = h5py.File(partial, "w", libver="latest")
+            except (OSError, BlockingIOError) as exc:
+                raise RunFileError(f"cannot create {partial}: {_one_line(exc)}") from None
+            try:
+                cls._layout(handle, setup, backend, compress)
+                handle.swmr_mode = True
+            except Exception:
+                handle.close()
+                raise
+        except BaseException:
+            lock.release()
             raise
-        return cls(handle, final)
+        return cls(handle, final, lock)
 
     @staticmethod
     def _layout(f: h5py.File, s, backend: str, compress: bool) -> None:
@@ -173,10 +231,12 @@ class RunWriter:
         partial = partial_path(final)
         if not partial.exists():
             raise RunFileError(f"nothing to resume: {partial} does not exist")
+        lock = WriteLock(final)
         try:
             handle = h5py.File(partial, "r+", libver="latest")
         except OSError as exc:
-            raise RunFileError(f"cannot reopen {partial} to resume it: {exc}") from None
+            lock.release()
+            raise RunFileError(f"cannot reopen {partial} to resume it: {_one_line(exc)}") from None
         try:
             if handle.attrs.get("format") != FORMAT:
                 raise RunFileError(f"{partial} is not a sojourn run file")
@@ -198,10 +258,11 @@ class RunWriter:
                 handle["observables/samples"][name].resize(int(n_samp), axis=0)
             handle.attrs["status"] = "running"
             handle.swmr_mode = True
-        except Exception:
+        except BaseException:
             handle.close()
+            lock.release()
             raise
-        return cls(handle, final), state
+        return cls(handle, final, lock), state
 
     # -- writing -------------------------------------------------------------------------
     def snapshot(self, step: int, t: float, psi: np.ndarray, observables: dict,
@@ -243,20 +304,32 @@ class RunWriter:
         self._committed = time.monotonic()
 
     def _fail(self, exc: OSError):
-        self._pending.clear()
-        self.close("failed")
-        raise RunFileError(f"writing {self.partial} failed ({exc}); what was written before "
-                           "is kept") from None
+        """A write failed (disk full, ...): keep what can still be written, mark the
+        file failed, close it, and say so."""
+        if not self._failing:
+            self._failing = True
+            try:
+                self.close("failed")
+            except (OSError, RunFileError):
+                pass
+        raise RunFileError(f"writing {self.partial} failed ({_one_line(exc)}); what was written before "
+                           "is kept, with status 'failed'") from None
 
     def close(self, status: str) -> None:
         """Close with a status (interrupted, failed); the .partial file stays."""
-        if self.h5.id.valid:
-            try:
-                self.commit()
-                self.h5.attrs["status"] = status
-                self.h5.flush()
-            finally:
-                self.h5.close()
+        try:
+            if self.h5.id.valid:
+                try:
+                    self.commit()
+                finally:
+                    try:
+                        self.h5.attrs["status"] = status
+                        self.h5.flush()
+                    finally:
+                        self.h5.close()
+        finally:
+            if self.lock is not None:
+                self.lock.release()
 
     def finish(self) -> Path:
         """Mark complete, close, and rename NAME.h5.partial → NAME.h5."""
@@ -265,6 +338,8 @@ class RunWriter:
         self.h5.attrs["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat()
         self.h5.close()
         os.replace(self.partial, self.final)
+        if self.lock is not None:
+            self.lock.release()
         return self.final
 
 
@@ -276,16 +351,23 @@ class RunFile:
         self.path = Path(path)
         if not self.path.exists():
             raise RunFileError(f"{self.path}: no such file")
-        try:
-            self.h5 = h5py.File(self.path, "r", swmr=True)
-        except OSError as exc:
+        if self.path.is_dir():
+            raise RunFileError(f"{self.path}: a folder, not a run file")
+        # a finished file is opened plainly, so that HDF5 checks its length (a
+        # truncated copy is refused here); a .partial one may still be growing (SWMR)
+        modes = ({"swmr": True}, {}) if self.path.name.endswith(".partial") else ({},)
+        error = None
+        for mode in modes:
             try:
-                self.h5 = h5py.File(self.path, "r")
-            except OSError:
-                kind = "not an HDF5 file" if not h5py.is_hdf5(self.path) else \
-                    "a damaged or truncated HDF5 file"
-                raise RunFileError(f"{self.path}: cannot read it as a run file ({kind}: "
-                                   f"{exc})") from None
+                self.h5 = h5py.File(self.path, "r", **mode)
+                break
+            except OSError as exc:
+                error = error or exc
+        else:
+            kind = "not an HDF5 file" if not h5py.is_hdf5(self.path) else \
+                "a damaged or truncated HDF5 file, or one another program is writing"
+            raise RunFileError(f"{self.path}: cannot read it as a run file ({kind}: "
+                               f"{_one_line(error)})")
         attrs = self.h5.attrs
         if attrs.get("format") != FORMAT:
             self.h5.close()

@@ -196,18 +196,25 @@ def _compose_lines(node, path, lines, seen=None):
             _compose_lines(item, path + (i,), lines, seen)
 
 
-def _cyclic(data, active=None) -> bool:
-    """True if the data refer to themselves (a YAML alias inside its own anchor)."""
+def _cyclic(data, active=None, done=None) -> bool:
+    """True if the data refer to themselves (a YAML alias inside its own anchor).
+    Each shared list or mapping is explored once, so aliases cost nothing."""
     active = set() if active is None else active
-    if not isinstance(data, (dict, list)):
+    done = set() if done is None else done
+    if not isinstance(data, (dict, list)) or id(data) in done:
         return False
     if id(data) in active:
         return True
     active.add(id(data))
     items = data.values() if isinstance(data, dict) else data
-    found = any(_cyclic(item, active) for item in items)
+    found = any(_cyclic(item, active, done) for item in items)
     active.discard(id(data))
+    done.add(id(data))
     return found
+
+
+def _one_line(message) -> str:
+    return " ".join(str(message).split())
 
 
 def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
@@ -218,9 +225,10 @@ def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line = mark.line + 1 if mark else 1
-        raise ScenarioError(f"{source}:{line}: not valid YAML: {exc.problem or exc}") from None
+        raise ScenarioError(f"{source}:{line}: not valid YAML: "
+                            f"{_one_line(exc.problem or exc)}") from None
     except yaml.YAMLError as exc:
-        raise ScenarioError(f"{source}:1: not valid YAML: {exc}") from None
+        raise ScenarioError(f"{source}:1: not valid YAML: {_one_line(exc)}") from None
     except (RecursionError, MemoryError):
         raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
     lines: dict = {}
