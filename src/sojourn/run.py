@@ -12,6 +12,7 @@ from . import observables as obs
 from .build import Setup, output_path
 from .propagate import Propagator
 from .runfile import RunWriter
+from .scenario import SojournError
 
 
 class Sampler:
@@ -94,8 +95,8 @@ def _index_slice(grid, interval) -> Optional[slice]:
     return slice(max(a, 0), min(max(b, 0), grid.points))
 
 
-class NonFinite(ArithmeticError):
-    """ψ stopped being finite during a run."""
+class NonFinite(SojournError, ArithmeticError):
+    """ψ stopped being finite during a run (the run file is kept, status failed)."""
 
 
 def execute(setup: Setup, output: Optional[Path] = None, overwrite: bool = False,
