@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import signal
 import sys
 from importlib import resources
@@ -98,6 +99,13 @@ def cmd_run(args) -> int:
     path = run_scenario(args.scenario, args.output, args.overwrite, args.resume, args.force,
                         args.quiet)
     _say(f"wrote {path}")
+    if args.verify:
+        from . import measure
+        _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
+              "run's cost; and Δt/2, about 2×) — this takes a while")
+        result = measure.verify(path, progress=_warn)
+        for line in format_delay_report(result.report, result.moves):
+            _say(line)
     return EXIT_OK
 
 
@@ -222,6 +230,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--force", action="store_true",
                    help="run despite an under-resolved grid or a time step past the limit")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or notes")
+    p.add_argument("--verify", action="store_true",
+                   help="then measure the delays with convergence error bars (two reruns; slow)")
     p.set_defaults(func=cmd_run)
 
     p = sub.add_parser("check", help="validate a scenario and report resolution and estimates")
@@ -339,6 +349,8 @@ def cmd_theory(args) -> int:
     from . import theory
     from .scenario import load
     scenario = load(args.scenario)
+    if args.synthesize:
+        return _synthesize(scenario, args)
     energies = theory.parse_energies(args.energies) if args.energies else None
     table = theory.theory_table(scenario, energies)
     if args.plot:
@@ -363,7 +375,25 @@ def add_theory(sub) -> None:
     fmt.add_argument("--json", action="store_true", help="one JSON object on stdout")
     fmt.add_argument("--csv", action="store_true", help="the per-energy columns as CSV")
     p.add_argument("--plot", metavar="FILE.png", help="draw R, T and the delays against energy")
+    p.add_argument("--synthesize", metavar="FILE.h5",
+                   help="write the exact solution (built from stationary states) as a run file")
+    p.add_argument("--overwrite", action="store_true", help="with --synthesize: replace FILE.h5")
+    p.add_argument("-q", "--quiet", action="store_true")
     p.set_defaults(func=cmd_theory)
+
+
+def _synthesize(scenario, args) -> int:
+    from .build import build
+    from .run import write_synthesis
+    setup = build(scenario)
+    _report_findings(setup, args.quiet, force=True)
+    update, close = _progress_bar(setup.steps, args.quiet)
+    try:
+        path = write_synthesis(setup, Path(args.synthesize), args.overwrite, update)
+    finally:
+        close()
+    _say(f"wrote {path} (exact synthesis)")
+    return EXIT_OK
 
 
 VERBS.append(add_theory)
@@ -574,6 +604,9 @@ def main(argv=None) -> int:
             raise
         _warn(f"error: {exc}")
         return EXIT_INPUT
+    except BrokenPipeError:  # output piped into a program that stopped reading
+        sys.stdout = open(os.devnull, "w")
+        return EXIT_OK
     except KeyboardInterrupt:
         _warn("interrupted; the run file is kept as .partial with status 'interrupted' "
               "(continue it with `sojourn run SCENARIO --resume`)")

@@ -3,6 +3,8 @@ probabilities and the probability current at detectors."""
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
+from typing import Optional
 
 import numpy as np
 
@@ -71,9 +73,39 @@ def norm(psi, dx) -> float:
     return float(np.vdot(psi, psi).real * dx)
 
 
-def probability(psi, dx, index_slice: slice) -> float:
-    part = psi[index_slice]
-    return float(np.vdot(part, part).real * dx)
+@dataclass(frozen=True)
+class Window:
+    """The grid cells an interval [a, b] touches (cell i is [x_i − dx/2, x_i + dx/2])
+    and the fractions of the first and last cell inside it, so that a boundary
+    on a grid point counts half that point (midpoint rule, error O(Δx²))."""
+
+    cells: slice
+    first: float
+    last: float
+
+
+def window(grid, a: float, b: float) -> Optional[Window]:
+    """Window of [a, b] on the grid, or None if it holds no cell."""
+    lo = min(max((a - grid.left) / grid.dx + 0.5, 0.0), grid.points)
+    hi = min(max((b - grid.left) / grid.dx + 0.5, 0.0), grid.points)
+    if hi <= lo:
+        return None
+    i0, i1 = int(math.floor(lo)), int(math.ceil(hi)) - 1
+    if i0 == i1:
+        return Window(slice(i0, i0 + 1), hi - lo, hi - lo)
+    return Window(slice(i0, i1 + 1), i0 + 1 - lo, hi - i1)
+
+
+def probability(psi, dx, where: Optional[Window]) -> float:
+    """∫|ψ|² dx over a window's interval."""
+    if where is None:
+        return 0.0
+    part = psi[where.cells]
+    total = float(np.vdot(part, part).real)
+    ends = abs(part[0]) ** 2, abs(part[-1]) ** 2
+    if len(part) == 1:
+        return float(where.first * ends[0] * dx)
+    return float((total - (1 - where.first) * ends[0] - (1 - where.last) * ends[1]) * dx)
 
 
 def moments(psi: np.ndarray, grid, V: np.ndarray, hbar: float, mass: float) -> dict:

@@ -24,9 +24,9 @@ class Sampler:
         self.dt, self.every = setup.dt, setup.sample_steps
         self.dx = g.dx
         self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
-        self.region = _index_slice(g, setup.region)
-        self.left, self.right = _index_slice(g, (g.left, setup.reference)), \
-            _index_slice(g, (setup.reference, g.right))
+        self.region = obs.window(g, *setup.region) if setup.region else None
+        self.left = obs.window(g, g.left - g.dx, setup.reference)
+        self.right = obs.window(g, setup.reference, g.right + g.dx)
         self.layers = []
         if setup.W is not None:
             half = g.points // 2
@@ -47,7 +47,7 @@ class Sampler:
     def take(self, psi: np.ndarray, t: float) -> None:
         self.t.append(t)
         self.flux.append(self.detectors.flux(psi) if len(self.detectors) else [0.0])
-        self.p_region.append(obs.probability(psi, self.dx, self.region) if self.region else 0.0)
+        self.p_region.append(obs.probability(psi, self.dx, self.region))
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
         for side, (sl, rate) in enumerate(self.layers):
@@ -81,18 +81,10 @@ class Sampler:
         values = obs.moments(psi, setup.grid, setup.V, setup.hbar, setup.mass)
         values["P_left"] = obs.probability(psi, self.dx, self.left)
         values["P_right"] = obs.probability(psi, self.dx, self.right)
-        values["P_region"] = obs.probability(psi, self.dx, self.region) if self.region else 0.0
+        values["P_region"] = obs.probability(psi, self.dx, self.region)
         a_left, a_right = self.split_absorbed(values["norm"])
         values["absorbed_left"], values["absorbed_right"] = a_left, a_right
         return values
-
-
-def _index_slice(grid, interval) -> Optional[slice]:
-    if interval is None:
-        return None
-    a = int(math.ceil((interval[0] - grid.left) / grid.dx - 1e-9))
-    b = int(math.floor((interval[1] - grid.left) / grid.dx + 1e-9)) + 1
-    return slice(max(a, 0), min(max(b, 0), grid.points))
 
 
 class NonFinite(SojournError, ArithmeticError):
@@ -148,3 +140,51 @@ def execute(setup: Setup, output: Optional[Path] = None, overwrite: bool = False
         writer.close("failed")
         raise
     return writer.finish()
+
+
+def write_synthesis(setup: Setup, output: Path, overwrite: bool = False,
+                    progress: Optional[Callable[[int, int], None]] = None) -> Path:
+    """Write the exact solution built from stationary states (theory.synthesize)
+    as a run file in the same layout, at the times a run would record and
+    sample, so that every other command works on it. No absorber, norm 1."""
+    from .theory import synthesize
+    sc = setup.scenario
+    if setup.W is not None:
+        setup = _without_absorber(setup)
+    writer = RunWriter.open_new(Path(output), setup, "exact synthesis (theory)", overwrite,
+                                sc.record.compress)
+    sampler = Sampler(setup)
+    g = setup.grid
+    nodes = sorted({i for sl in sampler.detectors._slices for i in range(sl.start, sl.stop)}
+                   | (set(range(sampler.region.cells.start, sampler.region.cells.stop)) if sampler.region
+                      else set()))
+    nodes = np.array(nodes, dtype=int)
+    recordings = list(range(0, setup.steps, setup.record_steps)) + [setup.steps]
+    try:
+        previous = None
+        for step in recordings:
+            # the samples a run takes up to this recording: t = 0 first, then every
+            # sample_steps steps after the previous recording
+            sampled = [0] if previous is None else list(
+                range(previous + setup.sample_steps, step + 1, setup.sample_steps))
+            times = np.array(sampled, dtype=float) * setup.dt
+            full = np.zeros(g.points, complex)
+            for tk, values in zip(times, synthesize(sc, times, x=g.x[nodes])):
+                full[nodes] = values
+                sampler.take(full, float(tk))
+                sampler.norm[-1] = 1.0
+            psi = synthesize(sc, [step * setup.dt], x=g.x)[0]
+            writer.snapshot(step, step * setup.dt, psi, sampler.recording(psi, setup),
+                            sampler.batch(), (0.0, 0.0))
+            if progress:
+                progress(step, setup.steps)
+            previous = step
+    except BaseException:
+        writer.close("failed")
+        raise
+    return writer.finish()
+
+
+def _without_absorber(setup: Setup) -> Setup:
+    from dataclasses import replace
+    return replace(setup, W=None)
