@@ -34,15 +34,14 @@ from typing import Optional, Sequence
 
 import numpy as np
 
+from .grid import Grid
 from .potentials import Potential
 from .scenario import SojournError
 
 __all__ = [
     "TheoryError", "Layers", "Scattering", "ChannelPrediction", "PacketPrediction",
     "layers_from_potential", "scatter", "scatter_scenario", "stationary_state",
-    "packet_prediction", "packet_kinematics", "synthesize", "initial_packet", "grid_points",
-    "default_energies",
-    "parse_energies", "theory_table", "format_table", "table_csv", "plot_theory",
+    "packet_prediction", "packet_kinematics", "synthesize", "default_energies", "parse_energies", "theory_table", "format_table", "table_csv", "plot_theory",
 ]
 
 DEFAULT_TOL = 1e-10        # relative tolerance of the slicing refinement
@@ -832,30 +831,13 @@ def packet_prediction(scenario, *, tol: float = 1e-9) -> PacketPrediction:
 # Exact synthesis
 
 
-def initial_packet(scenario, x) -> np.ndarray:
-    """ψ₀(x) = (2πσ²)^(−1/4) exp(−(x−x₀)²/(4σ²) ± i k₀ x) (σ: rms width of |ψ|²)."""
-    k0, _, _, _ = packet_kinematics(scenario)
-    pk = scenario.packet
-    sign = 1.0 if pk.direction == "right" else -1.0
-    x = np.asarray(x, dtype=float)
-    s = pk.width
-    return (2 * np.pi * s ** 2) ** -0.25 * np.exp(-(x - pk.center) ** 2 / (4 * s ** 2)
-                                                  + 1j * sign * k0 * x)
-
-
-def grid_points(scenario) -> np.ndarray:
-    """x_j = span[0] + j·Δx, j = 0..N−1, Δx = (span[1] − span[0])/N."""
-    g = scenario.grid
-    return g.span[0] + np.arange(g.points) * ((g.span[1] - g.span[0]) / g.points)
-
-
 def synthesize(scenario, times, x=None, *, nodes: Optional[int] = None,
                cells: Optional[int] = None, chunk: int = 256) -> np.ndarray:
     """Exact ψ(x, t) = ∫ dk φ̃₀(k) ψ_k(x) e^{−iE(k)t/ħ} from the stationary states.
 
     Returns a complex array (len(times), len(x)); x defaults to the scenario's
     grid. φ̃₀ is the Fourier amplitude of the free Gaussian ψ₀ of
-    `initial_packet`, so ψ(x, 0) reproduces ψ₀ left of the potential (up to
+    `packets.gaussian`, so ψ(x, 0) reproduces ψ₀ left of the potential (up to
     its own reflected and transmitted tails, which are negligible when the
     packet starts far from the potential). The k-integral is the trapezoid
     rule on k₀ ± 12σ_k (components with k ≤ 0 are dropped: their weight is
@@ -870,7 +852,7 @@ def synthesize(scenario, times, x=None, *, nodes: Optional[int] = None,
     m, hbar = scenario.particle_mass, scenario.hbar
     pk = scenario.packet
     times = np.atleast_1d(np.asarray(times, dtype=float))
-    x = grid_points(scenario) if x is None else np.asarray(x, dtype=float)
+    x = Grid.from_spec(scenario.grid).x if x is None else np.asarray(x, dtype=float)
     k_lo = max(k0 - K_SPAN_SYNTHESIS * sk, 1e-3 * k0)
     k_hi = k0 + K_SPAN_SYNTHESIS * sk
     if nodes is None:
