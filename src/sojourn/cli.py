@@ -82,16 +82,29 @@ def run_scenario(path, output=None, overwrite=False, resume=False, force=False, 
     scenario, setup = _load_and_build(path)
     _report_findings(setup, quiet, force)
     update, close = _progress_bar(setup.steps, quiet)
-    previous = signal.signal(signal.SIGTERM, _sigterm)
+    _STOP["requested"] = False
+    previous = {sig: signal.signal(sig, _sigterm) for sig in (signal.SIGTERM, signal.SIGINT)}
+
+    def step(done, total):   # a signal Python swallowed (in a weakref callback) stops here
+        if _STOP["requested"]:
+            raise KeyboardInterrupt
+        if update:
+            update(done, total)
+
     try:
-        result = execute(setup, Path(output) if output else None, overwrite, resume, update)
+        result = execute(setup, Path(output) if output else None, overwrite, resume, step)
     finally:
         close()
-        signal.signal(signal.SIGTERM, previous)
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
     return result
 
 
+_STOP = {"requested": False}
+
+
 def _sigterm(signum, frame):
+    _STOP["requested"] = True
     raise KeyboardInterrupt
 
 
