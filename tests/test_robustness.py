@@ -365,3 +365,19 @@ def test_an_energy_past_the_grid_nyquist_limit_is_refused(write_scenario, capsys
     assert [f.key for f in setup.errors()][0] == "grid.points"
     assert main(["run", str(path), "-q"]) == 2
     assert "grid resolution too coarse" in capsys.readouterr().err
+
+
+def test_the_superblock_checksum_matches_hdf5s_own(run_scenario):
+    # reference: the HDF5 library's checksum (Jenkins lookup3) in files it wrote
+    from sojourn.runfile import clear_write_flags, lookup3
+    path = _complete_run(run_scenario)
+    head = path.read_bytes()[:48]
+    assert head[8] in (2, 3) and head[9] == 8
+    assert lookup3(head[:44]) == int.from_bytes(head[44:48], "little")
+    assert clear_write_flags(path)
+    with RunFile(path) as rf:
+        assert rf.status == "complete"
+    foreign = path.with_name("text.h5")
+    foreign.write_bytes(b"plain text, not HDF5 at all, long enough for a superblock" * 2)
+    before = foreign.read_bytes()
+    assert not clear_write_flags(foreign) and foreign.read_bytes() == before
