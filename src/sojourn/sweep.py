@@ -523,12 +523,13 @@ def _run_on_dask(address: str, tasks: list, report) -> None:
     except (OSError, TimeoutError, ValueError) as exc:
         raise SweepError(f"cannot reach the Dask scheduler at {address} ({_one_line(exc)}); "
                          "check the address (tcp://HOST:PORT)") from None
+    import uuid
+    run_id = uuid.uuid4().hex[:8]       # keys unique to this invocation on the cluster
     futures = []
     try:
         for t in tasks:
             futures.append(client.submit(run_point, t, pure=False,
-                                         key=f"sojourn-{t['name']}-{t['fingerprint']}-"
-                                             f"{os.getpid()}"))
+                                         key=f"sojourn-{t['name']}-{run_id}"))
         by_key = {f.key: t for f, t in zip(futures, tasks)}
         for future in as_completed(futures):
             task = by_key[future.key]
@@ -566,9 +567,10 @@ def table_rows(sweep: Sweep, results: dict) -> list:
     rows = []
     for point in sweep.points:
         result = results.get(point.index, {"status": "pending", "error": None})
-        row = {"point": point.name, **point.values, **result.get("measured", {}),
-               "status": result["status"], "error": result.get("error")}
-        rows.append(row)
+        measured = {k: (None if isinstance(v, float) and not math.isfinite(v) else v)
+                    for k, v in result.get("measured", {}).items()}   # JSON has no NaN
+        rows.append({"point": point.name, **point.values, **measured,
+                     "status": result["status"], "error": result.get("error")})
     return rows
 
 
