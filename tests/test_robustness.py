@@ -203,8 +203,17 @@ def test_free_disk_space_is_checked_before_a_run(write_scenario, monkeypatch, ca
     out = tmp_path / "r.h5"
     assert main(["run", str(path), "-q", "-o", str(out)]) == 2
     err = capsys.readouterr().err
-    assert "record.every" in err and "1e+03 B free" in err or "1000 B" in err or "free" in err
+    assert "record.every" in err and "1e+03 B free" in err
     assert not out.exists() and not partial_path(out).exists()
+
+
+def test_a_run_that_could_never_finish_is_refused(write_scenario, capsys):
+    path = write_scenario(SMALL.replace("evolve: {duration: 40.0, dt: 0.05}",
+                                        "evolve: {duration: 1.0e+12, dt: 0.05}"))
+    with pytest.raises(ScenarioError, match=r"evolve.dt: .* 2e\+13 steps, more than 1e\+12"):
+        build(loads(path.read_text(), str(path)))
+    assert main(["check", str(path)]) == 2
+    assert "evolve.dt" in capsys.readouterr().err
 
 
 # ---------------------------------------------------------------------------------------
