@@ -85,7 +85,7 @@ def test_frames_change_with_time_and_reuse_one_figure(run):
     options = render.MovieOptions(size=(256, 144))
     with RunFile(run) as rf:
         facts = render.run_facts(rf)
-        frame = render.MovieFrame(facts, options, render._peaks(rf, facts, options))
+        frame = render.MovieFrame(facts, options, render.peak_density(rf, facts, options))
         children = [len(ax.get_children()) for ax in frame.fig.axes]
         snaps = list(rf.snapshots())
         first = frame.draw(*snaps[0]).copy()

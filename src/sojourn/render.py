@@ -18,11 +18,11 @@ import math
 import os
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Callable, Iterator, Optional
+from typing import Callable, Optional
 
 import numpy as np
 
-from .packets import PacketInfo, free_evolution, free_width
+from .packets import PacketInfo, free_evolution
 from .runfile import RunFile
 from .scenario import SojournError
 
@@ -365,7 +365,7 @@ class MovieFrame:
     (axes, potential, E₀, legend, title) are drawn once and cached; each frame
     restores them and draws only the moving artists (blitting)."""
 
-    def __init__(self, facts: RunFacts, options: MovieOptions, peaks: dict):
+    def __init__(self, facts: RunFacts, options: MovieOptions, peak: float):
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure
         from matplotlib.patches import Polygon
@@ -394,7 +394,7 @@ class MovieFrame:
         ax = fig.add_axes((0.09, 0.11, 0.83 if "potential" in curves else 0.89, 0.73))
         axes = [ax]
         wave = {"real", "imag"} & curves
-        top = 1.08 * max(peaks.get("density", 0.0), 1e-300)
+        top = 1.08 * max(peak, 1e-300)
         ax.set_xlim(lo, hi)
         ax.set_ylim(-top if wave else 0.0, top)
         ax.set_xlabel(f"x ({u['length']})")
@@ -468,7 +468,7 @@ class MovieFrame:
             self.moving[:0] = [self.fill]
             self.moving.append(self.density_line)
             handles.insert(0, self.density_line)
-        self.amplitude = math.sqrt(max(peaks.get("density", 0.0), 1e-300))
+        self.amplitude = math.sqrt(max(peak, 1e-300))
         if ax2 is not None:
             handles += ax2.get_lines()[:1]
         legend = ax.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 1.0),
@@ -517,7 +517,7 @@ class MovieFrame:
         return np.asarray(self.canvas.buffer_rgba())
 
 
-def _peaks(run: RunFile, facts: RunFacts, options: MovieOptions) -> dict:
+def peak_density(run: RunFile, facts: RunFacts, options: MovieOptions) -> float:
     """Largest |ψ|² (and the reference's) inside the window over all snapshots,
     read one at a time, so that the axes stay fixed through the movie."""
     lo, hi = _window(facts, options.xlim)
@@ -530,17 +530,7 @@ def _peaks(run: RunFile, facts: RunFacts, options: MovieOptions) -> dict:
         if "reference" in options.curves and facts.scattering:
             ref = mirror_reference(xs, t, facts.packet, facts.reference, facts.hbar, facts.mass)
             top = max(top, float(np.max(ref.real ** 2 + ref.imag ** 2)))
-    return {"density": top}
-
-
-def frames(path, options: MovieOptions = MovieOptions()) -> Iterator[np.ndarray]:
-    """The movie's frames (H×W×4 RGBA uint8, one per snapshot, each the same
-    buffer redrawn), drawn while the snapshots are read one at a time."""
-    with _open_run(path) as run:
-        facts = run_facts(run)
-        frame = MovieFrame(facts, options, _peaks(run, facts, options))
-        for t, psi in run.snapshots():
-            yield frame.draw(t, psi)
+    return top
 
 
 def render_movie(path, output, options: MovieOptions = MovieOptions(),
@@ -558,7 +548,7 @@ def render_movie(path, output, options: MovieOptions = MovieOptions(),
     parse_curves(",".join(options.curves))
     with _open_run(path) as run:
         facts = run_facts(run)
-        frame = MovieFrame(facts, options, _peaks(run, facts, options))
+        frame = MovieFrame(facts, options, peak_density(run, facts, options))
         total = len(run)
         writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
         done = 0
@@ -794,5 +784,5 @@ def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Pat
 __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "MovieOptions", "FigureOptions", "RenderError",
            "parse_size", "parse_xlim", "parse_curves", "figure_size", "mirror_reference",
            "reference_trajectory", "turning_time", "side_centroid", "energy_spectrum",
-           "render_movie", "render_figure", "figure", "frames", "space_time", "outgoing_trajectory",
-           "MovieFrame", "run_facts", "open_encoder"]
+           "render_movie", "render_figure", "figure", "space_time", "outgoing_trajectory",
+           "MovieFrame", "peak_density", "run_facts", "open_encoder"]
