@@ -35,7 +35,7 @@ class Sampler:
                 nz = np.nonzero(w)[0]
                 if nz.size:
                     sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
-                self.layers.append((sl, 2 * setup.W[sl] / setup.hbar))
+                self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
         self.raw_absorbed = list(raw_absorbed)
         self.start_step = 0
         self.reset()
@@ -50,10 +50,9 @@ class Sampler:
         self.p_region.append(obs.probability(psi, self.dx, self.region))
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
-        for side, (sl, rate) in enumerate(self.layers):
-            part = psi[sl]
-            self.raw_absorbed[side] += float(np.dot(rate, (part.real ** 2 + part.imag ** 2))) \
-                * self.dx * self.dt * self.every
+        for side, (sl, root_rate) in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled
+            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[sl]) * self.dx * self.dt \
+                * self.every
         for side, value in enumerate(self.split_absorbed(total)):
             self.absorbed[side].append(value)
 
