@@ -292,10 +292,20 @@ def _guard(s: Setup, limit: float, absorber_width: float) -> None:
                         f"duration {s.duration:g} may be too short for the outgoing packet to clear "
                         f"the detectors by 5σ(t) (about {needed_time:.4g} {units.time} needed)"))
         if s.W is None:
-            room = min(abs(s.reference - info.center) + abs(s.reference - grid.left),
-                       grid.right - info.center) if info.k0 >= 0 else min(
-                abs(info.center - s.reference) + abs(grid.right - s.reference),
-                info.center - grid.left)
+            # the reflected part returns to the near edge; a transmitted part (only if the
+            # far side is open to the packet's fast components) runs to the far edge
+            left_level, right_level = s.potential.levels()
+            far_level = right_level if info.k0 >= 0 else left_level
+            e_fast = info.level + 0.5 * mass * v_fast ** 2
+            if info.k0 >= 0:
+                rooms = [abs(s.reference - info.center) + abs(s.reference - grid.left)]
+                far = grid.right - info.center
+            else:
+                rooms = [abs(info.center - s.reference) + abs(grid.right - s.reference)]
+                far = info.center - grid.left
+            if far_level < e_fast:
+                rooms.append(far)
+            room = min(rooms)
             if v_fast * s.duration > room:
                 add(Finding("warning", "absorber",
                             f"no absorber, and the fast part of the packet (v ≈ {v_fast:.3g}) can "
