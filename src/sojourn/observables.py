@@ -119,8 +119,8 @@ def moments(psi: np.ndarray, grid, V: np.ndarray, hbar: float, mass: float) -> d
     the expectation values normalised by the norm."""
     density = np.abs(psi) ** 2
     total = float(density.sum() * grid.dx)
-    if total <= 0:
-        return {"norm": 0.0, "x_mean": 0.0, "p_mean": 0.0, "energy": 0.0}
+    if not total > 0:  # zero, or not finite
+        return {"norm": total, "x_mean": 0.0, "p_mean": 0.0, "energy": 0.0}
     amplitude = np.fft.fft(psi)
     weights = np.abs(amplitude) ** 2
     weights_total = float(weights.sum())

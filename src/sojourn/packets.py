@@ -59,7 +59,7 @@ def gaussian(x: np.ndarray, center: float, width: float, k0: float) -> np.ndarra
 def on_grid(grid, info: PacketInfo) -> np.ndarray:
     """ψ₀ on the grid, normalised so that Σ|ψ|²dx = 1."""
     psi = gaussian(grid.x, info.center, info.width, info.k0)
-    return psi / math.sqrt(np.vdot(psi, psi).real * grid.dx)
+    return psi / math.sqrt(float(np.vecdot(psi, psi).real) * grid.dx)
 
 
 def free_width(width: float, t, hbar: float, mass: float):

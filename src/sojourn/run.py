@@ -124,12 +124,12 @@ def execute(setup: Setup, output: Optional[Path] = None, overwrite: bool = False
             prop.advance(chunk, setup.sample_steps, sampler)
             step += chunk
             psi = prop.psi
-            if not np.isfinite(psi[:: max(1, len(psi) // 64)]).all() or not np.isfinite(
-                    np.vdot(psi, psi)):
+            values = sampler.recording(psi, setup)
+            if not math.isfinite(values["norm"]):  # a nan or inf anywhere reaches the norm
                 raise NonFinite(f"ψ became non-finite at t = {step * setup.dt:g}; "
                                 "check the potential and the time step")
-            writer.snapshot(step, step * setup.dt, psi, sampler.recording(psi, setup),
-                            sampler.batch(), tuple(sampler.raw_absorbed))
+            writer.snapshot(step, step * setup.dt, psi, values, sampler.batch(),
+                            tuple(sampler.raw_absorbed))
             if progress:
                 progress(step, setup.steps)
     except KeyboardInterrupt:
