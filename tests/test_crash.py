@@ -107,7 +107,9 @@ def test_a_signal_closes_the_file_as_interrupted(write_scenario, tmp_path, sig):
 
 
 def test_a_second_process_cannot_write_the_same_output(write_scenario, tmp_path):
-    path = write_scenario(LONG)
+    # ten times longer than LONG: the first run is surely still writing when the
+    # second one is ready (it is stopped with SIGTERM afterwards)
+    path = write_scenario(LONG.replace("duration: 200.0", "duration: 2000.0"))
     out = tmp_path / "shared.h5"
     first = start(path, out)
     wait_for_snapshots(first, partial_path(out), 1)
