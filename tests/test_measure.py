@@ -55,3 +55,37 @@ def test_report_to_dict_is_json(run_scenario):
     save_report(path, report)
     with RunFile(path) as rf:
         assert rf.analysis() == json.loads(json.dumps(report.to_dict()))
+
+
+STEP = """
+units: atomic
+grid: {span: [-400.25, 199.75], points: 1024}
+potential:
+  - step: {at: 0.0, height: 1.0}
+packet: {center: -200.0, width: 20.0, energy: 0.5}
+evolve: {duration: 400.0, dt: 0.1}
+record: {every: 20.0}
+measure: {detectors: [DETECTOR]}
+"""
+
+
+def test_reference_run_gives_the_same_delays_as_the_exact_free_evolution(run_scenario, capsys):
+    # the split-operator step is exact for a free packet (the kinetic factor is applied in
+    # k-space: Feit, Fleck & Steiger, J. Comput. Phys. 47, 412 (1982)), so a named free
+    # reference run must reproduce the exact free evolution's delays
+    _, path = run_scenario(STEP.replace("DETECTOR", "-100.0"), "step.yaml")
+    # the free packet runs on to x ≈ 200 + 6σ(t): a box that holds it (no wrap-around)
+    free = STEP.replace("potential:\n  - step: {at: 0.0, height: 1.0}\n", "").replace(
+        "[-400.25, 199.75]", "[-400.25, 399.75]")
+    _, ref = run_scenario(free.replace("DETECTOR", "100.0"), "free.yaml")
+    exact = measure_delays(path).reflection.measured
+    assert cli.main(["delay", str(path), "--reference-run", str(ref), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    named = out["reflection"]["measured"]
+    for method in ("centroid", "arrival"):
+        assert named[method]["delay"] == pytest.approx(exact[method].delay, rel=1e-5), method
+    assert not any("reference run" in w for w in out["warnings"])
+    # a reference run without the mirrored detector falls back, and says so
+    _, bare = run_scenario(free.replace("DETECTOR", "-100.0"), "bare.yaml")
+    assert cli.main(["delay", str(path), "--reference-run", str(bare)]) == 0
+    assert "has no detector" in capsys.readouterr().out
