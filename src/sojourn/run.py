@@ -10,6 +10,7 @@ import numpy as np
 
 from . import observables as obs
 from .build import Setup, output_path
+from .fft import FFTPair
 from .propagate import Propagator
 from .runfile import RunWriter
 from .scenario import SojournError
@@ -38,7 +39,13 @@ class Sampler:
                 self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
         self.raw_absorbed = list(raw_absorbed)
         self.start_step = 0
+        self._spectrum = FFTPair(g.points)  # a planned transform for ⟨p⟩ and ⟨H⟩
         self.reset()
+
+    def _transform(self, psi: np.ndarray) -> np.ndarray:
+        self._spectrum.buffer[:] = psi
+        self._spectrum.forward()
+        return self._spectrum.buffer
 
     def reset(self) -> None:
         self.t, self.flux, self.p_region, self.norm = [], [], [], []
@@ -77,7 +84,7 @@ class Sampler:
         return out
 
     def recording(self, psi, setup: Setup) -> dict:
-        values = obs.moments(psi, setup.grid, setup.V, setup.hbar, setup.mass)
+        values = obs.moments(psi, setup.grid, setup.V, setup.hbar, setup.mass, self._transform)
         values["P_left"] = obs.probability(psi, self.dx, self.left)
         values["P_right"] = obs.probability(psi, self.dx, self.right)
         values["P_region"] = obs.probability(psi, self.dx, self.region)

@@ -268,7 +268,7 @@ class RunWriter:
         _resizable(snaps, "step", dtype="i8")
         dtype = "c8" if sc.evolve.precision == "single" else "c16"
         psi = snaps.create_dataset("psi", shape=(0, n), maxshape=(None, n), chunks=(1, n),
-                                   dtype=dtype, **({"compression": "gzip", "compression_opts": 4,
+                                   dtype=dtype, **({"compression": "gzip", "compression_opts": 1,
                                                     "shuffle": True} if compress else {}))
         psi.dims[0].attach_scale(t)
         psi.dims[1].attach_scale(x)
