@@ -64,7 +64,8 @@ def command_lines(draw, files):
     target = draw(st.sampled_from(["scenario", "bad", "run", "junk", "sweep", "missing",
                                    "folder", "text"]))
     path = {"missing": str(files["folder"] / "absent.yaml"),
-            "text": draw(st.text(max_size=10))}.get(target) or str(files[target])
+            "text": draw(st.text(max_size=10))}.get(target)
+    path = str(files[target]) if path is None else path
     argv = [verb, path] if verb else [path]
     for _ in range(draw(st.integers(0, 4))):
         argv.append(draw(st.sampled_from(OPTIONS)))

@@ -176,7 +176,7 @@ def check_outcome(text: str, tmp_path) -> None:
             return
         if isinstance(data, dict) and "refers to itself" not in message:
             where = message.split(": ", 2)[1]
-            keys = {str(k) for k in data} | set(Scenario.model_fields)
+            keys = {str(k) for k in data} | {repr(k) for k in data} | set(Scenario.model_fields)
             assert where == "(top level)" or any(where.startswith(k) for k in keys), message
         return
     # it loaded: every number is finite, and the guards judge it without crashing

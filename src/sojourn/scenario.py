@@ -250,6 +250,8 @@ def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
 def format_path(loc) -> str:
     out = ""
     for part in loc:
+        if isinstance(part, str) and not (part.isprintable() and part.strip() == part and part):
+            part = repr(part)   # a key with a newline or blanks, shown so it can be seen
         out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
     return out or "(top level)"
 

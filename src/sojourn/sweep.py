@@ -137,7 +137,7 @@ def loads_sweep(text: str, source: str = "<sweep>", base_dir: Optional[Path] = N
     base_path = Path(data["base"])
     base_path = base_path if base_path.is_absolute() else base_dir / base_path
     if not base_path.is_file():
-        fail(("base",), f"no scenario file at {base_path}")
+        fail(("base",), f"no scenario file at {str(base_path)!r}")
     base = load(base_path)
     base_data, _ = parse_yaml(base.text, base.source)
 
