@@ -315,3 +315,14 @@ def test_with_changes_validates_again(change):
         assert "\n" not in str(exc)
         return
     assert key == "grid.points" and changed.grid.points == 2 ** 40   # refused later, by build
+
+
+@pytest.mark.parametrize("old,new", [("width: 20.0", "width: 1.0e+300"),
+                                     ("width: 20.0", "width: 1.0e-300"),
+                                     ("energy: 0.5", "energy: 1.0e+300"),
+                                     ("mass: 1.0", "mass: 1.0e-300")])
+def test_extreme_but_finite_numbers_are_judged_without_crashing(old, new):
+    # found by the long profile: products of such numbers overflowed inside build
+    text = (CONFIGS / "barrier.yaml").read_text()
+    text = text.replace(old, new) if old in text else text + new + "\n"
+    check_outcome(text, CONFIGS)

@@ -125,6 +125,16 @@ def _default_region(potential, grid, absorber_width):
 
 def build(scenario: Scenario) -> Setup:
     """Make a scenario concrete and run the guards (see `Setup.findings`)."""
+    try:
+        return _build(scenario)
+    except (OverflowError, ZeroDivisionError, FloatingPointError) as exc:
+        # numbers each valid alone (1e308, 1e-300) whose products leave the floats
+        raise ScenarioError(f"{scenario.source}: the scenario's numbers are too large or too "
+                            f"small to compute with ({exc}); check mass, grid, packet and "
+                            "evolve for extreme values") from None
+
+
+def _build(scenario: Scenario) -> Setup:
     findings: list[Finding] = []
     _refuse_oversized(scenario)
     grid = Grid.from_spec(scenario.grid)
