@@ -38,10 +38,12 @@ def absorber_profile(x: np.ndarray, left: float, right: float, width: float,
 
 
 def default_absorber_strength(width: float, speed: float, hbar: float) -> float:
-    """Peak W for a quadratic layer: the round trip through the layer damps a
-    wave of group velocity `speed` by e^(-4∫W dx/ħv) ≈ 1e-8 (common practice:
-    strong enough to absorb, gentle enough not to reflect; checked in tests)."""
-    return 3 * hbar * speed * math.log(1e8) / (4 * width)
+    """Peak W for a quadratic layer: one pass through the layer damps the
+    probability of a wave of group velocity `speed` by e^(-2∫W dx/ħv) = 1e-8, so
+    that what the grid's periodicity carries on into the opposite layer is
+    negligible and each side's absorption is its own (common practice: strong
+    enough to absorb, gentle enough not to reflect; both checked in tests)."""
+    return 3 * hbar * speed * math.log(1e8) / (2 * width)
 
 
 def time_step_limit(kinetic_max: float, v_range: float, hbar: float) -> float:
