@@ -108,17 +108,19 @@ def _default_detectors(potential, packet, grid, reference, absorber_width):
     return out
 
 
-def _default_region(potential, grid, absorber_width):
-    """The potential's support; where a level differs on one side (a step), the
-    region reaches to that side's absorber (or box edge), where the packet dwells."""
+def _default_region(potential, grid, absorber_width, packet):
+    """The potential's support; beyond a step the packet cannot cross (the far
+    level above its whole band) the region reaches to that side's absorber, so
+    the dwell time counts the evanescent penetration."""
     support = potential.support()
     if support is None or potential.confining:
         return None
     a, b = support
     left, right = potential.levels()
-    if right != left and right > left:
+    band_top = packet.level + (packet.energy - packet.level) * (1 + 6 * packet.sigma_k / abs(packet.k0)) ** 2
+    if packet.k0 >= 0 and right > band_top:
         b = grid.right - absorber_width
-    elif right != left:
+    elif packet.k0 < 0 and left > band_top:
         a = grid.left + absorber_width
     return (a, b)
 
@@ -209,7 +211,7 @@ def _build(scenario: Scenario) -> Setup:
     else:
         reference = 0.0
     region = tuple(scenario.measure.region) if scenario.measure.region else _default_region(
-        potential, grid, absorber_width)
+        potential, grid, absorber_width, info)
     detectors = list(scenario.measure.detectors) if scenario.measure.detectors is not None \
         else _default_detectors(potential, info, grid, reference, absorber_width)
 

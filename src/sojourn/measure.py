@@ -195,6 +195,9 @@ def _forward(rf: RunFile) -> _Run:
     info = packets.PacketInfo(**rf.packet)
     sign = 1 if info.k0 >= 0 else -1
     potential = sc.build_potential()
+    if potential.confining:
+        raise MeasureError(f"{rf.path}: the potential confines the packet (a harmonic term): "
+                           "there is no incoming or outgoing packet, so no delay to measure")
     x = rf.x
     V = rf.V
     W = rf.absorber
