@@ -195,8 +195,8 @@ def check_outcome(text: str, tmp_path) -> None:
 def _numbers(data):
     if isinstance(data, bool):
         return
-    if isinstance(data, (int, float)):
-        yield float(data)
+    if isinstance(data, float):   # (whole numbers are exact, however large)
+        yield data
     elif isinstance(data, dict):
         for v in data.values():
             yield from _numbers(v)

@@ -335,7 +335,7 @@ def _describe(error: dict, loc: tuple) -> str:
         if isinstance(got, dict) and len(got) == 1:
             close = difflib.get_close_matches(next(iter(got)), list(pot.TERMS), n=1)
             hint = f"; did you mean '{close[0]}'?" if close else ""
-            return f"unknown potential term '{next(iter(got))}'{hint} (known: {names})"
+            return f"unknown potential term {_short(next(iter(got)))}{hint} (known: {names})"
         return f"each potential term is a one-key mapping like 'step: {{...}}' (known: {names})"
     if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
         op = {"greater_than": ">", "greater_than_equal": ">=", "less_than": "<",
