@@ -117,7 +117,9 @@ def _default_region(potential, grid, absorber_width, packet):
         return None
     a, b = support
     left, right = potential.levels()
-    band_top = packet.level + (packet.energy - packet.level) * (1 + 6 * packet.sigma_k / abs(packet.k0)) ** 2
+    # the energy at |k₀| + 6σ_k (kinetic energy scales as k²)
+    band_top = packet.level + (packet.energy - packet.level) * (
+        (abs(packet.k0) + 6 * packet.sigma_k) / abs(packet.k0)) ** 2
     if packet.k0 >= 0 and right > band_top:
         b = grid.right - absorber_width
     elif packet.k0 < 0 and left > band_top:
@@ -166,7 +168,6 @@ def _build(scenario: Scenario) -> Setup:
     limit = time_step_limit(kinetic_max, v_range, hbar)
     if scenario.evolve.dt is None:
         dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
-        # no point in a step far finer than the packet's own phase needs
         dt_chosen = True
     else:
         dt, dt_chosen = scenario.evolve.dt, False
