@@ -85,7 +85,7 @@ def run_scenario(path, output=None, overwrite=False, resume=False, force=False, 
     _STOP["requested"] = False
     previous = {sig: signal.signal(sig, _sigterm) for sig in (signal.SIGTERM, signal.SIGINT)}
 
-    def step(done, total):   # a signal Python swallowed (in a weakref callback) stops here
+    def step(done, total):   # a Ctrl-C or SIGTERM stops the run here, at a recording
         if _STOP["requested"]:
             raise KeyboardInterrupt
         if update:
@@ -104,8 +104,12 @@ _STOP = {"requested": False}
 
 
 def _sigterm(signum, frame):
+    """The first signal asks the run to stop at its next recording (raising here,
+    at an arbitrary point, could land in a finalizer and be lost or print a
+    traceback); a second one stops at once."""
+    if _STOP["requested"]:
+        raise KeyboardInterrupt
     _STOP["requested"] = True
-    raise KeyboardInterrupt
 
 
 def cmd_run(args) -> int:
