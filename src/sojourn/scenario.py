@@ -391,15 +391,19 @@ def loads(text: str, source: str = "<scenario>", base_dir: Optional[Path] = None
     return validate(data, source, lines, base_dir, text)
 
 
+def read_text(path: Path, what: str = "scenario", error=ScenarioError) -> str:
+    """A YAML file's text, or `error` naming the file and why it cannot be read."""
+    try:
+        return path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise error(f"{path}: cannot read the {what} file ({exc.__class__.__name__}: "
+                    f"{getattr(exc, 'strerror', None) or exc})") from None
+
+
 def load(path) -> Scenario:
     """Scenario from a YAML file; relative paths in it resolve against its folder."""
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ScenarioError(f"{path}: cannot read the scenario file ({exc.__class__.__name__}: "
-                            f"{getattr(exc, 'strerror', None) or exc})") from None
-    return loads(text, str(path), path.parent)
+    return loads(read_text(path), str(path), path.parent)
 
 
 def with_changes(scenario: Scenario, changes: dict) -> Scenario:

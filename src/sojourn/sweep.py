@@ -36,7 +36,7 @@ from typing import Any, Callable, Optional
 import yaml
 
 from .scenario import (Scenario, ScenarioError, SojournError, _model_at, format_path, load,
-                       loads, parse_yaml, with_changes)
+                       loads, parse_yaml, read_text, with_changes)
 
 SWEEP_KEYS = ("base", "vary", "pairing", "output")
 PAIRINGS = ("product", "zip")
@@ -97,12 +97,7 @@ class Sweep:
 def load_sweep(path) -> Sweep:
     """A sweep from its YAML file (paths in it are relative to its folder)."""
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise SweepError(f"{path}: cannot read the sweep file ({exc.__class__.__name__}: "
-                         f"{getattr(exc, 'strerror', None) or exc})") from None
-    return loads_sweep(text, str(path), path.parent)
+    return loads_sweep(read_text(path, "sweep", SweepError), str(path), path.parent)
 
 
 def loads_sweep(text: str, source: str = "<sweep>", base_dir: Optional[Path] = None) -> Sweep:
