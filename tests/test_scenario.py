@@ -110,3 +110,9 @@ def test_with_changes_validates_again():
     assert with_changes(s, {"potential.0.step.height": 2.0}).terms[0].height == 2.0
     with pytest.raises(ScenarioError, match="packet.energy: must be > 0"):
         with_changes(s, {"packet.energy": -1.0})
+
+
+@pytest.mark.parametrize("key", ["text", "source"])
+def test_loader_fields_are_not_scenario_keys(key):
+    # the loader fills these in itself; a scenario that sets them is refused, not overridden
+    assert f"s.yaml:1: {key}: unknown key" in error_for(f"{key}: something\n" + GOOD)

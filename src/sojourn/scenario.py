@@ -370,6 +370,10 @@ def validate(data: Any, source: str = "<scenario>", lines: Optional[dict] = None
     if not isinstance(data, dict):
         raise ScenarioError(f"{source}:1: a scenario must be a mapping of keys "
                             f"(title, units, grid, potential, packet, evolve, ...)")
+    for own in ("source", "text"):   # filled in by the loader, not scenario keys
+        if own in data:
+            raise ScenarioError(f"{source}:{_line_for((own,), lines)}: {own}: unknown key; "
+                                "did you mean 'title'?")
     context = {"base_dir": str(base_dir or Path("."))}
     try:
         scenario = Scenario.model_validate({**data, "source": source, "text": text}, context=context)
