@@ -8,6 +8,7 @@ from sojourn import packets
 from sojourn.build import build
 from sojourn.grid import Grid
 from sojourn.propagate import ORDER, Propagator
+from sojourn.run import Sampler
 from sojourn.runfile import RunFile
 from sojourn.scenario import loads
 
@@ -155,40 +156,33 @@ def test_barrier_transmission_matches_spectrum_averaged_closed_form(run_scenario
         assert o["absorbed_left"][-1] > 0.5 * (1 - T_theory)
 
 
+def into_left_layer(width, duration):
+    """A free packet sent left into the absorbing layer; returns (setup, sampler, ψ(end))."""
+    setup = build(loads(f"""
+        units: atomic
+        grid: {{span: [-400.0, 400.0], points: 2048}}
+        packet: {{center: -150.0, width: 20.0, energy: 0.5, direction: left}}
+        evolve: {{duration: {duration}, dt: 0.05}}
+        absorber: {{width: {width}}}
+    """, "a.yaml"))
+    sampler = Sampler(setup)
+    prop = Propagator(setup.grid, setup.V, 1.0, 1.0, setup.dt, absorber=setup.W)
+    prop.set_state(setup.psi0())
+    prop.advance(setup.steps, setup.sample_steps, sampler)
+    return setup, sampler, prop.psi
+
+
 def test_absorbing_layer_reflects_little():
     # common practice, no source: a smooth complex absorbing ramp (Riss & Meyer,
     # J. Chem. Phys. 105, 1409 (1996)) should return < 1e-4 of a packet at its energies
-    text = """
-        units: atomic
-        grid: {span: [-400.0, 400.0], points: 2048}
-        packet: {center: -150.0, width: 20.0, energy: 0.5, direction: left}
-        evolve: {duration: 500.0, dt: 0.05}
-        absorber: {width: 100.0}
-    """
-    setup = build(loads(text, "a.yaml"))
-    prop = Propagator(setup.grid, setup.V, 1.0, 1.0, setup.dt, absorber=setup.W)
-    prop.set_state(setup.psi0())
-    prop.advance(setup.steps)
-    remaining = np.vdot(prop.psi, prop.psi).real * setup.grid.dx
-    assert remaining < 1e-4
+    setup, _, psi = into_left_layer(100.0, 500.0)
+    assert np.vdot(psi, psi).real * setup.grid.dx < 1e-4
 
 
 def test_absorbed_probability_stays_on_its_side():
     # a packet entering the left layer must not cross it into the right one through the
     # periodic edge: each side's absorption is then its own (R = P_left + absorbed_left)
-    text = """
-        units: atomic
-        grid: {span: [-400.0, 400.0], points: 2048}
-        packet: {center: -150.0, width: 20.0, energy: 0.5, direction: left}
-        evolve: {duration: 600.0, dt: 0.05}
-        absorber: {width: 60.0}
-    """
-    setup = build(loads(text, "a.yaml"))
-    from sojourn.run import Sampler
-    sampler = Sampler(setup)
-    prop = Propagator(setup.grid, setup.V, 1.0, 1.0, setup.dt, absorber=setup.W)
-    prop.set_state(setup.psi0())
-    prop.advance(setup.steps, setup.sample_steps, sampler)
+    _, sampler, _ = into_left_layer(60.0, 600.0)
     assert sampler.raw_absorbed[1] < 1e-6 * sampler.raw_absorbed[0]
     # the raw sampled integral (rectangle rule); recorded values are rescaled to 1 − norm
     assert sampler.raw_absorbed[0] == pytest.approx(1.0, abs=1e-2)
