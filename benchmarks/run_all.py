@@ -231,7 +231,7 @@ def io_share(points, steps):
             start = time.perf_counter()
             execute(setup, Path(folder) / f"r{every}{compress}.h5", overwrite=True)
             return time.perf_counter() - start
-        for _ in range(2):  # interleaved; fastest of two each
+        for _ in range(3):  # interleaved; fastest of three each
             for key, every, compress in (("none", duration, False), ("plain", 100 * dt, False),
                                          ("compressed", 100 * dt, True)):
                 out[key] = min(out.get(key, math.inf), timed(every, compress))
@@ -304,7 +304,7 @@ def main(argv=None) -> int:
         points, dt = (ours.points, ours.dt) if ours else (2048, cases.phase_dt(2048, 6.0))
         results["precision"] = precision(points, dt)
     if "io" in parts:
-        results["io"] = io_share(1 << 14, 2000)
+        results["io"] = io_share(1 << 14, 10000)
     if "memory" in parts:
         results["memory"] = memory()
     if args.json:
