@@ -1,4 +1,4 @@
-"""The run file: one self-describing HDF5 file per run (layout in DESIGN.md).
+"""The run file: one self-describing HDF5 file per run (layout in README.md).
 
 The writer works on NAME.h5.partial in HDF5's single-writer/multiple-reader
 mode, flushes at every snapshot together with a checkpoint of the full state,

