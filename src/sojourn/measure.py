@@ -666,8 +666,8 @@ def _health(run: _Run, stats, reflection, transmission, warnings) -> None:
     outside = float(spectrum[~band].sum() / total) if total > 0 else 0.0
     if outside > OUT_OF_BAND_WARN:
         warnings.append(f"{outside:.2g} of the final state lies outside the packet's k-band "
-                        f"(k₀ ± {K_SPAN:g}σ_k): spurious components, most likely a time step too "
-                        "large for the grid")
+                        f"(k₀ ± {K_SPAN:g}σ_k): spurious components, from a time step too large "
+                        "for the grid or a packet cut by the box edge")
     try:
         from .build import build
         phase = build(run.scenario).grid_phase
