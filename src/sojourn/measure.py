@@ -495,8 +495,14 @@ def _centroid_from_reference_run(run, ref, stats, usable, channel, warnings):
     snapshot times), mirrored at x_r for reflection."""
     t = run.times[usable]
     rt = ref.times
-    centres = np.array([_side_stats(ref.x, np.abs(psi) ** 2, ref.dx, np.ones_like(ref.x, bool))[1]
+    everywhere = np.ones_like(ref.x, bool)
+    centres = np.array([_side_stats(ref.x, np.abs(psi) ** 2, ref.dx, everywhere)[1]
                         for _, psi in ref.snapshots()])
+    edge = float(np.max(_snapshot_stats(ref)["edge"]))
+    if edge > LOST_WARN:
+        warnings.append(f"up to {edge:.2g} of the reference run's packet reached its box edge: "
+                        "its centroid wraps around the periodic box and the centroid delay "
+                        "against it cannot be trusted")
     if rt[-1] < t[-1] - 1e-9:
         warnings.append("the reference run ends before the measured one; its trajectory is "
                         "extrapolated")
