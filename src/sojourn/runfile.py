@@ -29,6 +29,7 @@ OBSERVABLES = ("norm", "x_mean", "p_mean", "energy", "P_left", "P_right", "P_reg
                "absorbed_left", "absorbed_right")
 SAMPLES = ("norm", "P_region", "absorbed_left", "absorbed_right")
 COMMIT_SECONDS = 2.0  # the most run time a crash can lose
+PSI_BLOCK = 16        # ψ rows the snapshot dataset grows by at a time
 
 
 class RunFileError(SojournError):
@@ -196,6 +197,7 @@ class RunWriter:
         self._smp = {name: handle["observables/samples"][name] for name in ("t", "flux") + SAMPLES}
         self._ck_psi, self._ck_info = handle["checkpoint/psi"], handle["checkpoint/info"]
         self._pending: list = []      # (step, t, psi copy, observables, samples, raw absorbed)
+        self._psi_rows = self._snap["t"].shape[0]   # ψ rows holding snapshots
         self._committed = time.monotonic()
 
     # -- creation ------------------------------------------------------------------------
@@ -344,9 +346,11 @@ class RunWriter:
         """Append a snapshot; its observables, the samples since the last one and
         the checkpoint follow at the next commit (at most COMMIT_SECONDS later)."""
         try:
-            _append(self._snap["t"], t)
-            _append(self._snap["step"], step)
-            _append(self._snap["psi"], psi)
+            rows = self._snap["psi"]
+            if self._psi_rows >= rows.shape[0]:   # grow in blocks: a resize costs a write
+                rows.resize(self._psi_rows + PSI_BLOCK, axis=0)
+            rows[self._psi_rows] = psi
+            self._psi_rows += 1
         except OSError as exc:
             self._fail(exc)
         self._pending.append((step, t, psi.copy(), observables, samples, raw_absorbed))
@@ -360,6 +364,8 @@ class RunWriter:
             return
         try:
             pending = self._pending
+            _append(self._snap["t"], [item[1] for item in pending])
+            _append(self._snap["step"], [item[0] for item in pending])
             _append(self._obs["t"], [item[1] for item in pending])
             for name in OBSERVABLES:
                 _append(self._obs[name], [item[3][name] for item in pending])
@@ -395,6 +401,7 @@ class RunWriter:
             if self.h5.id.valid:
                 try:
                     self.commit()
+                    self._trim()
                 finally:
                     try:
                         self.h5.attrs["status"] = status
@@ -405,9 +412,14 @@ class RunWriter:
             if self.lock is not None:
                 self.lock.release()
 
+    def _trim(self) -> None:
+        """Drop the unused rows of the last ψ block."""
+        self._snap["psi"].resize(self._snap["t"].shape[0], axis=0)
+
     def finish(self) -> Path:
         """Mark complete, close, and rename NAME.h5.partial → NAME.h5."""
         self.commit()
+        self._trim()
         self.h5.attrs["status"] = "complete"
         self.h5.attrs["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat()
         self.h5.close()
