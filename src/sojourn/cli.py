@@ -117,13 +117,18 @@ def cmd_run(args) -> int:
                         args.quiet)
     _say(f"wrote {path}")
     if args.verify:
-        from . import measure
-        _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
-              "run's cost; and Δt/2, about 2×) — this takes a while")
-        result = measure.verify(path, progress=_warn)
+        result = _verify(path)
         for line in format_delay_report(result.report, result.moves):
             _say(line)
     return EXIT_OK
+
+
+def _verify(path):
+    """Delays with convergence error bars (two reruns), announced as slow."""
+    from . import measure
+    _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
+          "run's cost; and Δt/2, about 2×) — this takes a while")
+    return measure.verify(path, progress=_warn)
 
 
 def cmd_check(args) -> int:
@@ -315,9 +320,7 @@ def cmd_delay(args) -> int:
     from . import measure
     moves = None
     if args.verify:
-        _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
-              "run's cost; and Δt/2, about 2×) — this takes a while")
-        result = measure.verify(args.file, progress=_warn)
+        result = _verify(args.file)
         report, moves = result.report, result.moves
     else:
         report = measure.measure_delays(args.file, reference_run=args.reference_run)
