@@ -20,11 +20,11 @@ import time
 from importlib import resources
 from pathlib import Path
 
-from sojourn import render
+from sojourn.render import core as render
 from sojourn.build import build
-from sojourn.run import execute
-from sojourn.runfile import RunFile
-from sojourn.scenario import loads
+from sojourn.engine.loop import execute
+from sojourn.store.runfile import RunFile
+from sojourn.config.scenario import loads
 
 
 def demo_run(folder: Path) -> Path:

@@ -27,11 +27,11 @@ import numpy as np
 from scipy import integrate
 from scipy.linalg import lapack
 
-from sojourn import packets
+from sojourn.model import packets
 from sojourn.build import build
-from sojourn.run import execute
-from sojourn.runfile import RunFile
-from sojourn.scenario import loads
+from sojourn.engine.loop import execute
+from sojourn.store.runfile import RunFile
+from sojourn.config.scenario import loads
 
 V0, SIGMA, E0 = 1.0, 20.0, 0.2
 K0 = math.sqrt(2 * E0)

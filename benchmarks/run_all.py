@@ -29,7 +29,7 @@ import cases  # noqa: E402
 
 from sojourn import bench  # noqa: E402
 from sojourn.build import build  # noqa: E402
-from sojourn.run import execute  # noqa: E402
+from sojourn.engine.loop import execute  # noqa: E402
 
 
 def say(*parts):
@@ -225,7 +225,7 @@ def io_share(points, steps):
     with tempfile.TemporaryDirectory() as folder:
         def timed(every, compress):
             sc = cases.sojourn_scenario(points, dt, every=every, compress=compress)
-            from sojourn.scenario import with_changes
+            from sojourn.config.scenario import with_changes
             sc = with_changes(sc, {"evolve.duration": duration})
             setup = build(sc)
             start = time.perf_counter()
@@ -250,9 +250,9 @@ def snapshot_cost(points, dt, rounds=5) -> dict:
     """The per-snapshot work timed directly (the end-to-end difference of two
     short runs is at the mercy of the machine's noise): the recording's
     observables, the writer's snapshot call, and 100 propagator steps."""
-    from sojourn.propagate import Propagator
-    from sojourn.run import Sampler
-    from sojourn.runfile import RunWriter
+    from sojourn.engine.propagate import Propagator
+    from sojourn.engine.loop import Sampler
+    from sojourn.store.runfile import RunWriter
     setup = build(cases.sojourn_scenario(points, dt, every=100 * dt))
     psi = setup.psi0()
     sampler = Sampler(setup)
@@ -284,8 +284,8 @@ import resource, sys
 sys.path.insert(0, {here!r})
 import cases
 from sojourn.build import build
-from sojourn.run import execute
-from sojourn.scenario import with_changes
+from sojourn.engine.loop import execute
+from sojourn.config.scenario import with_changes
 sc = cases.sojourn_scenario({points}, 1e-4, every=5e-4)
 sc = with_changes(sc, {{"evolve.duration": 1e-3}})
 execute(build(sc), {out!r})
@@ -294,7 +294,7 @@ print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
 
 BASELINE_PROBE = """
 import resource
-import sojourn.run, sojourn.build, h5py, numpy, scipy, pyfftw
+import sojourn.engine.loop, sojourn.build, h5py, numpy, scipy, pyfftw
 print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
 """
 

@@ -1,14 +1,24 @@
-"""Shared helpers: scenarios written as YAML text into a temporary folder."""
+"""Shared helpers: scenarios written as YAML text into a temporary folder.
+
+The checkout's own src/ is tested (pytest's pythonpath, and PYTHONPATH for the
+`python -m sojourn` subprocesses), and FFT wisdom goes to a temporary cache,
+never to the user's home."""
 from __future__ import annotations
 
+import os
+import tempfile
 import textwrap
 from pathlib import Path
 
 import pytest
 
+SRC = str(Path(__file__).resolve().parents[1] / "src")
+os.environ["PYTHONPATH"] = os.pathsep.join(p for p in (SRC, os.environ.get("PYTHONPATH")) if p)
+os.environ["XDG_CACHE_HOME"] = tempfile.mkdtemp(prefix="sojourn-test-cache-")
+
 from sojourn.build import build
-from sojourn.run import execute
-from sojourn.scenario import load
+from sojourn.engine.loop import execute
+from sojourn.config.scenario import load
 
 
 @pytest.fixture

@@ -7,8 +7,8 @@ import pytest
 
 from sojourn.build import build
 from sojourn.cli import main
-from sojourn.propagate import time_step_limit
-from sojourn.scenario import loads
+from sojourn.guards import time_step_limit
+from sojourn.config.scenario import loads
 
 BASE = """\
 units: atomic

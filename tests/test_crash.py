@@ -12,9 +12,10 @@ import numpy as np
 import pytest
 
 from sojourn.build import build
-from sojourn.run import execute
-from sojourn.runfile import RunFile, RunFileError, lock_path, partial_path
-from sojourn.scenario import load
+from sojourn.engine.loop import execute
+from sojourn.store.runfile import RunFile, lock_path, partial_path
+from sojourn.errors import RunFileError
+from sojourn.config.scenario import load
 
 # about 80 000 steps on 4096 points with a snapshot every 200 steps: several
 # seconds of run on a quiet machine, so that a signal lands in the middle
@@ -109,7 +110,7 @@ def test_a_signal_closes_the_file_as_interrupted(write_scenario, tmp_path, sig):
 def test_a_second_process_cannot_write_the_same_output(write_scenario, tmp_path):
     # ten times longer than LONG: the first run is surely still writing when the
     # second one is ready (it is stopped with SIGTERM afterwards)
-    path = write_scenario(LONG.replace("duration: 200.0", "duration: 2000.0"))
+    path = write_scenario(LONG.replace("duration: 400.0", "duration: 4000.0"))
     out = tmp_path / "shared.h5"
     first = start(path, out)
     wait_for_snapshots(first, partial_path(out), 1)

@@ -11,7 +11,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from sojourn.cli import main
-from sojourn.scenario import ScenarioError
+from sojourn.errors import ScenarioError
 
 SHORT = settings(max_examples=80, deadline=None, database=None, derandomize=True,
                  suppress_health_check=list(HealthCheck))
@@ -143,7 +143,7 @@ def sweep_texts(draw):
 
 
 def check_sweep(text, folder) -> None:
-    from sojourn.sweep import loads_sweep
+    from sojourn.sweep.core import loads_sweep
     try:
         sweep = loads_sweep(text, "w.yaml", folder)
     except ScenarioError as exc:

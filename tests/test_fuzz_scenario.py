@@ -17,8 +17,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from sojourn.build import build
-from sojourn.potentials import TERMS
-from sojourn.scenario import Scenario, ScenarioError, SojournError, loads, with_changes
+from sojourn.model.potentials import TERMS
+from sojourn.config.scenario import Scenario, loads, with_changes
+from sojourn.errors import ScenarioError, SojournError
 
 CONFIGS = Path(__file__).resolve().parents[1] / "configs"
 DEMO = Path(__file__).resolve().parents[1] / "src" / "sojourn" / "data" / "demo.yaml"

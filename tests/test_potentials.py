@@ -5,9 +5,8 @@ import math
 import numpy as np
 import pytest
 
-from sojourn import expression
-from sojourn.potentials import (Barrier, DeltaLike, Expression, Gaussian, Harmonic, Potential,
-                                Ramp, Sech2, SmoothStep, Step, Well)
+from sojourn.model import expression as expression
+from sojourn.model.potentials import Barrier, DeltaLike, Expression, Gaussian, Harmonic, Potential, Ramp, Sech2, SmoothStep, Step, Well
 
 
 def cells(term, left=-20.0, right=20.0, n=400):

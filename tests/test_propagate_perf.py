@@ -3,9 +3,9 @@ threads and precision options, and the FFT-thread default."""
 import numpy as np
 import pytest
 
-from sojourn import fft
-from sojourn.grid import Grid
-from sojourn.propagate import SCHEMES, Propagator
+from sojourn.engine import fft as fft
+from sojourn.model.grid import Grid
+from sojourn.engine.propagate import SCHEMES, Propagator
 
 
 def _case(points=512):

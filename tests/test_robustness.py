@@ -14,13 +14,17 @@ import numpy as np
 import pytest
 import yaml
 
-from sojourn import build as build_module
-from sojourn import expression, propagate
+from sojourn import guards as build_module
+from sojourn.model import expression as expression
+from sojourn.engine import propagate as propagate
 from sojourn.build import build
 from sojourn.cli import main
-from sojourn.run import NonFinite, execute
-from sojourn.runfile import RunFile, RunFileError, RunWriter, lock_path, partial_path
-from sojourn.scenario import ScenarioError, SojournError, loads
+from sojourn.engine.loop import execute
+from sojourn.errors import NonFinite
+from sojourn.store.runfile import RunFile, RunWriter, lock_path, partial_path
+from sojourn.errors import RunFileError
+from sojourn.config.scenario import loads
+from sojourn.errors import ScenarioError, SojournError
 
 SMALL = """\
 title: small step
@@ -300,7 +304,7 @@ def test_a_second_writer_of_the_same_output_is_refused(write_scenario, tmp_path)
 
 
 def test_a_second_sweep_on_the_same_folder_is_refused(tmp_path):
-    from sojourn import sweep
+    from sojourn.sweep import core as sweep
     with sweep.folder_lock(tmp_path):
         with pytest.raises(sweep.SweepError, match="another sweep is running"):
             with sweep.folder_lock(tmp_path):
@@ -378,7 +382,7 @@ def test_an_energy_past_the_grid_nyquist_limit_is_refused(write_scenario, capsys
 
 def test_the_superblock_checksum_matches_hdf5s_own(run_scenario):
     # reference: the HDF5 library's checksum (Jenkins lookup3) in files it wrote
-    from sojourn.runfile import clear_write_flags, lookup3
+    from sojourn.store.runfile import clear_write_flags, lookup3
     path = _complete_run(run_scenario)
     head = path.read_bytes()[:48]
     assert head[8] in (2, 3) and head[9] == 8

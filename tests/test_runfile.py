@@ -7,9 +7,10 @@ import pytest
 
 from sojourn.build import build
 from sojourn.cli import main
-from sojourn.run import execute
-from sojourn.runfile import FORMAT, RunFile, RunFileError, partial_path
-from sojourn.scenario import load
+from sojourn.engine.loop import execute
+from sojourn.store.runfile import FORMAT, RunFile, partial_path
+from sojourn.errors import RunFileError
+from sojourn.config.scenario import load
 
 SMALL = """\
 title: small step

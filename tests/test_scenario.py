@@ -1,7 +1,8 @@
 """Scenario loading: every error names file, line, key path and what was expected."""
 import pytest
 
-from sojourn.scenario import ScenarioError, load, loads, with_changes
+from sojourn.config.scenario import load, loads, with_changes
+from sojourn.errors import ScenarioError
 
 GOOD = """\
 title: test step

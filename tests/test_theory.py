@@ -7,11 +7,12 @@ import json
 import numpy as np
 import pytest
 
-from sojourn import closed_forms as cf
-from sojourn import potentials as P
-from sojourn import theory as th
+from sojourn.theory import closed_forms as cf
+from sojourn.model import potentials as P
+from sojourn.theory import solver as th
 from sojourn.cli import main
-from sojourn.scenario import SojournError, loads
+from sojourn.config.scenario import loads
+from sojourn.errors import SojournError
 
 
 def pot(*terms, mass=1.0, span=(-50.0, 50.0)):

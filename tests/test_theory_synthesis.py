@@ -4,11 +4,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from sojourn import closed_forms as cf
-from sojourn import packets
-from sojourn.grid import Grid
-from sojourn import theory as th
-from sojourn.scenario import loads
+from sojourn.theory import closed_forms as cf
+from sojourn.model import packets
+from sojourn.model.grid import Grid
+from sojourn.theory import solver as th
+from sojourn.config.scenario import loads
 
 
 def scenario(potential: str, E0=0.5, center=-200.0, direction="right", points=4096,

@@ -3,7 +3,7 @@ import math
 
 from scipy import constants as c
 
-from sojourn.units import ATOMIC, LAB
+from sojourn.model.units import ATOMIC, LAB
 
 
 def test_lab_hbar_matches_codata():

@@ -18,9 +18,10 @@ from typing import Callable, Optional
 import numpy as np
 
 from .build import Setup, build
-from .propagate import Propagator
-from .run import Sampler
-from .scenario import SojournError, loads
+from .engine.propagate import Propagator
+from .engine.loop import Sampler
+from .config.scenario import loads
+from .errors import BenchError
 
 QUICK_SIZES = (1 << 10, 1 << 12, 1 << 14, 1 << 16)
 FULL_SIZES = tuple(1 << p for p in range(10, 19))
@@ -38,8 +39,6 @@ measure: {{detectors: [-130.0]}}
 """
 
 
-class BenchError(SojournError):
-    """A benchmark that cannot be run here (e.g. pyFFTW missing)."""
 
 
 @dataclass

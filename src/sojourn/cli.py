@@ -10,14 +10,12 @@ import signal
 import sys
 from importlib import resources
 from pathlib import Path
+from .errors import SojournError, UsageError
 
-from .scenario import SojournError
 
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
 
-class UsageError(SojournError):
-    """Bad command-line arguments."""
 
 
 class _Parser(argparse.ArgumentParser):
@@ -39,7 +37,7 @@ def _warn(message: str) -> None:
 
 def _load_and_build(path):
     from .build import build
-    from .scenario import load
+    from .config.scenario import load
     scenario = load(path)
     return scenario, build(scenario)
 
@@ -78,7 +76,7 @@ def _progress_bar(total: int, quiet: bool):
 
 def run_scenario(path, output=None, overwrite=False, resume=False, force=False, quiet=False):
     """Validate, guard, run; returns the run file's path."""
-    from .run import execute
+    from .engine.loop import execute
     scenario, setup = _load_and_build(path)
     _report_findings(setup, quiet, force)
     update, close = _progress_bar(setup.steps, quiet)
@@ -125,7 +123,7 @@ def cmd_run(args) -> int:
 
 def _verify(path):
     """Delays with convergence error bars (two reruns), announced as slow."""
-    from . import measure
+    from .measure import core as measure
     _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
           "run's cost; and Δt/2, about 2×) — this takes a while")
     return measure.verify(path, progress=_warn)
@@ -169,7 +167,7 @@ def cmd_check(args) -> int:
 
 
 def describe_runfile(path) -> dict:
-    from .runfile import RunFile
+    from .store.runfile import RunFile
     with RunFile(path) as rf:
         attrs = rf.attrs
         obs = rf.observables()
@@ -317,7 +315,7 @@ def format_delay_report(report, moves=None) -> list:
 
 
 def cmd_delay(args) -> int:
-    from . import measure
+    from .measure import core as measure
     moves = None
     if args.verify:
         result = _verify(args.file)
@@ -352,7 +350,7 @@ def add_delay(sub) -> None:
 
 
 def demo_delay(run_path, out_folder, args) -> None:
-    from . import measure
+    from .measure import core as measure
     for line in format_delay_report(measure.measure_delays(run_path)):
         _say(line)
 
@@ -366,8 +364,8 @@ DEMO_STEPS.append(demo_delay)
 
 
 def cmd_theory(args) -> int:
-    from . import theory
-    from .scenario import load
+    from .theory import solver as theory
+    from .config.scenario import load
     scenario = load(args.scenario)
     if args.synthesize:
         return _synthesize(scenario, args)
@@ -404,7 +402,7 @@ def add_theory(sub) -> None:
 
 def _synthesize(scenario, args) -> int:
     from .build import build
-    from .run import write_synthesis
+    from .engine.loop import write_synthesis
     setup = build(scenario)
     _report_findings(setup, args.quiet, force=True)
     update, close = _progress_bar(setup.steps, args.quiet)
@@ -438,7 +436,7 @@ def _frame_bar(quiet: bool):
 
 
 def cmd_render(args) -> int:
-    from . import render
+    from .render import core as render
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
     common = {}
@@ -489,7 +487,7 @@ def add_render(sub) -> None:
 
 
 def demo_render(run_path, out_folder, args) -> None:
-    from . import render
+    from .render import core as render
     update, close = _frame_bar(getattr(args, "quiet", False))
     try:   # 720p keeps the demo quick; talks get 1080p by default
         movie = render.render_movie(run_path, Path(out_folder) / "demo.mp4",
@@ -509,7 +507,7 @@ DEMO_STEPS.append(demo_render)
 
 def cmd_bench(args) -> int:
     from . import bench
-    from .fft import backend_name
+    from .engine.fft import backend_name
     sizes = args.sizes or (bench.QUICK_SIZES if args.quick else bench.FULL_SIZES)
     budget = 0.3 if args.quick else 1.5
     results = bench.survey(sizes, args.single, args.threads, budget)
@@ -566,7 +564,7 @@ def _sweep_bar(total: int, quiet: bool):
 
 
 def cmd_sweep(args) -> int:
-    from . import sweep as sw
+    from .sweep import core as sw
     spec = sw.load_sweep(args.sweep)
     if args.workers is not None and args.workers < 1:
         raise UsageError("sojourn sweep: --workers must be at least 1")

@@ -14,9 +14,9 @@ from scipy.integrate import quad
 from scipy.special import erfc
 
 from sojourn.build import build
-from sojourn.measure import measure_delays, verify
-from sojourn.run import execute
-from sojourn.scenario import loads, with_changes
+from sojourn.measure.core import measure_delays, verify
+from sojourn.engine.loop import execute
+from sojourn.config.scenario import loads, with_changes
 
 SIGMA = 20.0
 SIGMA_K = 1 / (2 * SIGMA)
@@ -85,7 +85,7 @@ measure: {{detectors: {detectors}}}
 def run(folder, name, text):
     path = folder / f"{name}.yaml"
     path.write_text(text)
-    from sojourn.scenario import load
+    from sojourn.config.scenario import load
     setup = build(load(path))
     return execute(setup, folder / f"{name}.h5")
 

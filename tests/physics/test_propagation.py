@@ -4,13 +4,13 @@ import math
 import numpy as np
 import pytest
 
-from sojourn import packets
+from sojourn.model import packets
 from sojourn.build import build
-from sojourn.grid import Grid
-from sojourn.propagate import ORDER, Propagator
-from sojourn.run import Sampler
-from sojourn.runfile import RunFile
-from sojourn.scenario import loads
+from sojourn.model.grid import Grid
+from sojourn.engine.propagate import ORDER, Propagator
+from sojourn.engine.loop import Sampler
+from sojourn.store.runfile import RunFile
+from sojourn.config.scenario import loads
 
 
 def width_and_centre(x, psi, dx):

@@ -7,10 +7,10 @@ import math
 import numpy as np
 import pytest
 
-from sojourn import theory
+from sojourn.theory import solver as theory
 from sojourn.build import build
-from sojourn.propagate import Propagator
-from sojourn.scenario import loads
+from sojourn.engine.propagate import Propagator
+from sojourn.config.scenario import loads
 
 T_END = 300.0
 

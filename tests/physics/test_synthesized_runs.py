@@ -6,10 +6,10 @@ import pytest
 
 from sojourn.build import build
 from sojourn.cli import main
-from sojourn.measure import measure_delays
-from sojourn.run import write_synthesis
-from sojourn.runfile import RunFile
-from sojourn.scenario import load
+from sojourn.measure.core import measure_delays
+from sojourn.engine.loop import write_synthesis
+from sojourn.store.runfile import RunFile
+from sojourn.config.scenario import load
 
 STEP = """\
 units: atomic

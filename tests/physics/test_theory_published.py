@@ -8,10 +8,10 @@ from scipy import constants as C
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq, minimize_scalar
 
-from sojourn import closed_forms as cf
-from sojourn import potentials as P
-from sojourn import theory as th
-from sojourn.scenario import loads
+from sojourn.theory import closed_forms as cf
+from sojourn.model import potentials as P
+from sojourn.theory import solver as th
+from sojourn.config.scenario import loads
 
 
 def pot(*terms, mass=1.0):

@@ -35,8 +35,8 @@ from typing import Any, Callable, Optional
 
 import yaml
 
-from .scenario import (Scenario, ScenarioError, SojournError, _model_at, format_path, load,
-                       loads, parse_yaml, read_text, with_changes)
+from ..config.scenario import Scenario, _model_at, format_path, load, loads, parse_yaml, read_text, with_changes
+from ..errors import RunFileError, SojournError, SweepError, one_line
 
 SWEEP_KEYS = ("base", "vary", "pairing", "output")
 PAIRINGS = ("product", "zip")
@@ -48,8 +48,6 @@ TABLE_CSV, TABLE_JSON, SUMMARY_PNG = "table.csv", "table.json", "summary.png"
 RESULT_FORMAT = "sojourn.sweep-point"
 
 
-class SweepError(ScenarioError):
-    """A sweep that cannot be used or run as asked (bad file, busy folder, no cluster)."""
 
 
 # ----------------------------------------------------------------------------------------
@@ -214,8 +212,7 @@ def _make_point(index: int, values: dict, base: Scenario) -> Point:
 
 
 def _one_line(exc: BaseException) -> str:
-    text = str(exc) if isinstance(exc, SojournError) else f"{type(exc).__name__}: {exc}"
-    return " ".join(text.split())
+    return one_line(exc if isinstance(exc, SojournError) else f"{type(exc).__name__}: {exc}")
 
 
 # ----------------------------------------------------------------------------------------
@@ -248,10 +245,10 @@ def run_point(task: dict) -> dict:
 
 
 def _run_and_measure(task: dict, folder: Path, name: str) -> dict:
-    from . import measure
-    from .build import build
-    from .runfile import RunFile, RunFileError
-    from .run import execute
+    from ..measure import core as measure
+    from ..build import build
+    from ..store.runfile import RunFile, RunFileError
+    from ..engine.loop import execute
 
     scenario = loads(task["text"], task["source"], Path(task["base_dir"]))
     path = folder / f"{name}.h5"
@@ -281,7 +278,7 @@ def _run_and_measure(task: dict, folder: Path, name: str) -> dict:
 
 def _report_values(report, path: Path, scenario: Scenario) -> dict:
     """The table's numbers from a delay report: R, T and per channel the delays."""
-    from .runfile import RunFile
+    from ..store.runfile import RunFile
     with RunFile(path) as rf:
         obs = rf.observables()
     left = float(obs["P_left"][-1] + obs["absorbed_left"][-1])
@@ -399,7 +396,7 @@ def _task(sweep: Sweep, point: Point, folder: Path, verify: bool) -> dict:
 
 def _recorded(folder: Path, point: Point, verify: bool) -> Optional[dict]:
     """The recorded result of a complete point (None if it must run)."""
-    from .runfile import RunFile, RunFileError
+    from ..store.runfile import RunFile, RunFileError
     try:
         result = json.loads((folder / f"{point.name}.json").read_text(encoding="utf-8"))
     except (OSError, ValueError):
@@ -688,7 +685,7 @@ def _label(value) -> str:
 def _theory_curve(scenario: Scenario, channel: str, energies):
     """(E, τ(E)) of the stationary theory over the range of the swept energies."""
     import numpy as np
-    from . import theory
+    from ..theory import solver as theory
     finite = energies[np.isfinite(energies)]
     if finite.size < 1 or scenario is None:
         return None

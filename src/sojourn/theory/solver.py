@@ -34,9 +34,9 @@ from typing import Optional, Sequence
 
 import numpy as np
 
-from .grid import Grid
-from .potentials import Potential
-from .scenario import SojournError
+from ..model.grid import Grid
+from ..model.potentials import Potential
+from ..errors import TheoryError
 
 __all__ = [
     "TheoryError", "Layers", "Scattering", "ChannelPrediction", "PacketPrediction",
@@ -50,8 +50,6 @@ K_SPAN_AVERAGES = 8.0      # packet averages: k0 ± 8 σ_k (|ψ̃|² falls to 1e
 K_SPAN_SYNTHESIS = 12.0    # synthesis: k0 ± 12 σ_k (ψ̃ itself falls to 2e-16)
 
 
-class TheoryError(SojournError):
-    """A stationary-theory request that cannot be answered (with the reason)."""
 
 
 # ----------------------------------------------------------------------------------------

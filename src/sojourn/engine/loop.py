@@ -9,11 +9,12 @@ from typing import Callable, Optional
 import numpy as np
 
 from . import observables as obs
-from .build import Setup, output_path
+from ..build import Setup
+from ..store.paths import output_path
 from .fft import FFTPair
 from .propagate import Propagator
-from .runfile import RunWriter
-from .scenario import SojournError
+from ..store.runfile import RunWriter
+from ..errors import NonFinite
 
 
 class Sampler:
@@ -93,8 +94,6 @@ class Sampler:
         return values
 
 
-class NonFinite(SojournError, ArithmeticError):
-    """ψ stopped being finite during a run (the run file is kept, status failed)."""
 
 
 def execute(setup: Setup, output: Optional[Path] = None, overwrite: bool = False,
@@ -153,7 +152,7 @@ def write_synthesis(setup: Setup, output: Path, overwrite: bool = False,
     """Write the exact solution built from stationary states (theory.synthesize)
     as a run file in the same layout, at the times a run would record and
     sample, so that every other command works on it. No absorber, norm 1."""
-    from .theory import synthesize
+    from ..theory.solver import synthesize
     sc = setup.scenario
     if setup.W is not None:
         setup = _without_absorber(setup)

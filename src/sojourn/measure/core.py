@@ -41,9 +41,10 @@ from typing import Callable, Optional
 
 import numpy as np
 
-from . import packets
-from .runfile import RunFile, RunFileError
-from .scenario import SojournError, with_changes
+from ..model import packets
+from ..store.runfile import RunFile
+from ..config.scenario import with_changes
+from ..errors import SojournError, RunFileError, MeasureError
 
 METHODS = ("centroid", "arrival", "spectral")
 SEPARATION = 6.0        # widths between the outgoing packet and the potential / box edge
@@ -56,8 +57,6 @@ SAFETY = 1.25           # factor on the Richardson estimate (grid convergence in
 CHANNEL_MIN = 1e-6      # outgoing probability below which a channel is not measured
 
 
-class MeasureError(SojournError):
-    """A run file that cannot be measured as asked."""
 
 
 # ----------------------------------------------------------------------------------------
@@ -536,7 +535,7 @@ def _reference_run_flux(run, ref, channel, xd, times, warnings):
 def predictions(scenario, reference: float, region):
     """The theory's packet-averaged predictions for the run's reference point
     and dwell region (None, and the reason, if theory cannot treat it)."""
-    from . import theory
+    from ..theory import solver as theory
     changes = {"measure.reference": float(reference)}
     if region is not None:
         changes["measure.region"] = [float(region[0]), float(region[1])]
@@ -675,7 +674,7 @@ def _health(run: _Run, stats, reflection, transmission, warnings) -> None:
                         f"(k₀ ± {K_SPAN:g}σ_k): spurious components, from a time step too large "
                         "for the grid or a packet cut by the box edge")
     try:
-        from .build import build
+        from ..build import build
         phase = build(run.scenario).grid_phase
     except SojournError:
         phase = None
@@ -728,8 +727,8 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
 
     The finer-grid rerun costs about 8×, the half-step rerun 2× the base run.
     """
-    from .build import build
-    from .run import execute
+    from ..build import build
+    from ..engine.loop import execute
     say = progress or (lambda message: None)
     path = Path(runfile_or_path.path if isinstance(runfile_or_path, RunFile) else runfile_or_path)
     base = measure_delays(runfile_or_path)

@@ -22,9 +22,9 @@ from typing import Callable, Optional
 
 import numpy as np
 
-from .packets import PacketInfo, free_evolution
-from .runfile import RunFile
-from .scenario import SojournError
+from ..model.packets import PacketInfo, free_evolution
+from ..store.runfile import RunFile
+from ..errors import SojournError, RenderError
 
 CURVES = ("density", "real", "imag", "phase", "reference", "potential")
 DEFAULT_CURVES = ("density", "reference", "potential")
@@ -37,8 +37,6 @@ MAP_COLUMNS = 1200         # space–time map resolution caps (bins, not pixels 
 MAP_ROWS = 1500
 
 
-class RenderError(SojournError):
-    """Render options or outputs that cannot be used as asked."""
 
 
 # ---------------------------------------------------------------------------------------
@@ -647,7 +645,7 @@ def theory_delays(facts: RunFacts, energies: np.ndarray) -> dict:
     theory cannot say (the potential outside its reach)."""
     if facts.scenario is None:
         return {}
-    from . import theory
+    from ..theory import solver as theory
     try:
         result = theory.scatter_scenario(facts.scenario, energies, x_r=facts.reference)
     except (SojournError, ValueError, ArithmeticError):

@@ -16,16 +16,13 @@ import yaml
 from pydantic import (BaseModel, BeforeValidator, ConfigDict, Discriminator, Field, Tag,
                       ValidationError, create_model, field_validator, model_validator)
 
-from . import potentials as pot
-from .units import UnitSystem, get as get_units
+from ..model import potentials as pot
+from ..model.units import UnitSystem, get as get_units
+from ..errors import ScenarioError, one_line
 
 
-class SojournError(Exception):
-    """Base of the tool's own errors: the message is for the user."""
 
 
-class ScenarioError(SojournError):
-    """A scenario (or sweep) file that cannot be used, with file:line: key: why."""
 
 
 class _Strict(BaseModel):
@@ -213,9 +210,6 @@ def _cyclic(data, active=None, done=None) -> bool:
     return found
 
 
-def _one_line(message) -> str:
-    return " ".join(str(message).split())
-
 
 def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
     """YAML text → (plain data, {key path: line}). Safe loader only."""
@@ -226,9 +220,9 @@ def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
         mark = exc.problem_mark or exc.context_mark
         line = mark.line + 1 if mark else 1
         raise ScenarioError(f"{source}:{line}: not valid YAML: "
-                            f"{_one_line(exc.problem or exc)}") from None
+                            f"{one_line(exc.problem or exc)}") from None
     except yaml.YAMLError as exc:
-        raise ScenarioError(f"{source}:1: not valid YAML: {_one_line(exc)}") from None
+        raise ScenarioError(f"{source}:1: not valid YAML: {one_line(exc)}") from None
     except (RecursionError, MemoryError):
         raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
     lines: dict = {}

@@ -20,8 +20,9 @@ from typing import Optional
 import h5py
 import numpy as np
 
-from . import __version__
-from .scenario import SojournError, loads as load_scenario_text
+from .. import __version__
+from ..config.scenario import loads as load_scenario_text
+from ..errors import RunFileError, one_line
 
 FORMAT = "sojourn.run"
 FORMAT_VERSION = 1
@@ -32,14 +33,7 @@ COMMIT_SECONDS = 2.0  # the most run time a crash can lose
 PSI_BLOCK = 16        # ψ rows the snapshot dataset grows by at a time
 
 
-class RunFileError(SojournError):
-    """A run file that cannot be written or read as asked."""
 
-
-def _one_line(exc, limit: int = 160) -> str:
-    """An h5py/HDF5 message (which may span lines) as one short line."""
-    text = " ".join(str(exc).split())
-    return text if len(text) <= limit else text[:limit] + "..."
 
 
 def partial_path(path: Path) -> Path:
@@ -224,7 +218,7 @@ class RunWriter:
             try:
                 handle = h5py.File(partial, "w", libver="latest")
             except (OSError, BlockingIOError) as exc:
-                raise RunFileError(f"cannot create {partial}: {_one_line(exc)}") from None
+                raise RunFileError(f"cannot create {partial}: {one_line(exc, 160)}") from None
             try:
                 cls._layout(handle, setup, backend, compress)
                 handle.swmr_mode = True
@@ -312,7 +306,7 @@ class RunWriter:
                 handle = h5py.File(partial, "r+", libver="latest")
         except OSError as exc:
             lock.release()
-            raise RunFileError(f"cannot reopen {partial} to resume it: {_one_line(exc)}") from None
+            raise RunFileError(f"cannot reopen {partial} to resume it: {one_line(exc, 160)}") from None
         try:
             if handle.attrs.get("format") != FORMAT:
                 raise RunFileError(f"{partial} is not a sojourn run file")
@@ -392,7 +386,7 @@ class RunWriter:
                 self.close("failed")
             except (OSError, RunFileError):
                 pass
-        raise RunFileError(f"writing {self.partial} failed ({_one_line(exc)}); what was written before "
+        raise RunFileError(f"writing {self.partial} failed ({one_line(exc, 160)}); what was written before "
                            "is kept, with status 'failed'") from None
 
     def close(self, status: str) -> None:
@@ -453,7 +447,7 @@ class RunFile:
             kind = "not an HDF5 file" if not h5py.is_hdf5(self.path) else \
                 "a damaged or truncated HDF5 file, or one another program is writing"
             raise RunFileError(f"{self.path}: cannot read it as a run file ({kind}: "
-                               f"{_one_line(error)})")
+                               f"{one_line(error, 160)})")
         attrs = self.h5.attrs
         if attrs.get("format") != FORMAT:
             self.h5.close()

@@ -1,0 +1,1 @@
+"""Reading scenario files: YAML with line marks, the validated Scenario model."""

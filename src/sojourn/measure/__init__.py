@@ -1,0 +1,1 @@
+"""Delays measured from a run, each beside its own theoretical prediction."""

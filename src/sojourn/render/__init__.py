@@ -1,0 +1,1 @@
+"""Movies and figures of a run."""

@@ -1,0 +1,1 @@
+"""The run file: its layout, writer, reader, locks and paths."""

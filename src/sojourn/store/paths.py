@@ -1,0 +1,15 @@
+"""Where a run writes: the names of its files."""
+from __future__ import annotations
+
+from pathlib import Path
+
+
+def output_path(scenario) -> Path:
+    """The run file a scenario writes: record.output (relative to the scenario's
+    folder), else ./outputs/NAME.h5."""
+    if scenario.record.output:
+        path = Path(scenario.record.output)
+        if not path.is_absolute() and scenario.source:
+            path = Path(scenario.source).parent / path
+        return path
+    return Path("outputs") / f"{scenario.name}.h5"

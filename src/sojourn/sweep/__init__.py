@@ -1,0 +1,1 @@
+"""Sweeps: many runs of one base scenario, one table."""

@@ -1,0 +1,1 @@
+"""Stationary scattering theory: the layered solver, states, packet-averaged predictions, tables, closed forms."""
