@@ -22,7 +22,7 @@ from pathlib import Path
 
 from sojourn.render import core as render
 from sojourn.build import build
-from sojourn.engine.loop import execute
+from sojourn.workflows import run as execute
 from sojourn.store.runfile import RunFile
 from sojourn.config.scenario import loads
 

@@ -29,7 +29,7 @@ from scipy.linalg import lapack
 
 from sojourn.model import packets
 from sojourn.build import build
-from sojourn.engine.loop import execute
+from sojourn.workflows import run as execute
 from sojourn.store.runfile import RunFile
 from sojourn.config.scenario import loads
 

@@ -29,7 +29,7 @@ import cases  # noqa: E402
 
 from sojourn import bench  # noqa: E402
 from sojourn.build import build  # noqa: E402
-from sojourn.engine.loop import execute  # noqa: E402
+from sojourn.workflows import run as execute  # noqa: E402
 
 
 def say(*parts):
@@ -251,7 +251,7 @@ def snapshot_cost(points, dt, rounds=5) -> dict:
     short runs is at the mercy of the machine's noise): the recording's
     observables, the writer's snapshot call, and 100 propagator steps."""
     from sojourn.engine.propagate import Propagator
-    from sojourn.engine.loop import Sampler
+    from sojourn.engine.sampler import Sampler
     from sojourn.store.runfile import RunWriter
     setup = build(cases.sojourn_scenario(points, dt, every=100 * dt))
     psi = setup.psi0()
@@ -284,7 +284,7 @@ import resource, sys
 sys.path.insert(0, {here!r})
 import cases
 from sojourn.build import build
-from sojourn.engine.loop import execute
+from sojourn.workflows import run as execute
 from sojourn.config.scenario import with_changes
 sc = cases.sojourn_scenario({points}, 1e-4, every=5e-4)
 sc = with_changes(sc, {{"evolve.duration": 1e-3}})
@@ -294,7 +294,7 @@ print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
 
 BASELINE_PROBE = """
 import resource
-import sojourn.engine.loop, sojourn.build, h5py, numpy, scipy, pyfftw
+import sojourn.workflows, sojourn.build, h5py, numpy, scipy, pyfftw
 print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)
 """
 

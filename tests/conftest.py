@@ -17,7 +17,7 @@ os.environ["PYTHONPATH"] = os.pathsep.join(p for p in (SRC, os.environ.get("PYTH
 os.environ["XDG_CACHE_HOME"] = tempfile.mkdtemp(prefix="sojourn-test-cache-")
 
 from sojourn.build import build
-from sojourn.engine.loop import execute
+from sojourn.workflows import run as execute
 from sojourn.config.scenario import load
 
 

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from sojourn.build import build
-from sojourn.engine.loop import execute
+from sojourn.workflows import run as execute
 from sojourn.store.runfile import RunFile, lock_path, partial_path
 from sojourn.errors import RunFileError
 from sojourn.config.scenario import load

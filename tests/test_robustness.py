@@ -19,7 +19,7 @@ from sojourn.model import expression as expression
 from sojourn.engine import propagate as propagate
 from sojourn.build import build
 from sojourn.cli import main
-from sojourn.engine.loop import execute
+from sojourn.workflows import run as execute
 from sojourn.errors import NonFinite
 from sojourn.store.runfile import RunFile, RunWriter, lock_path, partial_path
 from sojourn.errors import RunFileError

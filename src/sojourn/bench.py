@@ -19,7 +19,7 @@ import numpy as np
 
 from .build import Setup, build
 from .engine.propagate import Propagator
-from .engine.loop import Sampler
+from .engine.sampler import Sampler
 from .config.scenario import loads
 from .errors import BenchError
 

@@ -76,7 +76,7 @@ def _progress_bar(total: int, quiet: bool):
 
 def run_scenario(path, output=None, overwrite=False, resume=False, force=False, quiet=False):
     """Validate, guard, run; returns the run file's path."""
-    from .engine.loop import execute
+    from . import workflows
     scenario, setup = _load_and_build(path)
     _report_findings(setup, quiet, force)
     update, close = _progress_bar(setup.steps, quiet)
@@ -90,7 +90,7 @@ def run_scenario(path, output=None, overwrite=False, resume=False, force=False, 
             update(done, total)
 
     try:
-        result = execute(setup, Path(output) if output else None, overwrite, resume, step)
+        result = workflows.run(setup, Path(output) if output else None, overwrite, resume, step)
     finally:
         close()
         for sig, handler in previous.items():
@@ -123,10 +123,10 @@ def cmd_run(args) -> int:
 
 def _verify(path):
     """Delays with convergence error bars (two reruns), announced as slow."""
-    from .measure import core as measure
+    from . import workflows
     _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
           "run's cost; and Δt/2, about 2×) — this takes a while")
-    return measure.verify(path, progress=_warn)
+    return workflows.verify(path, progress=_warn)
 
 
 def cmd_check(args) -> int:
@@ -402,12 +402,12 @@ def add_theory(sub) -> None:
 
 def _synthesize(scenario, args) -> int:
     from .build import build
-    from .engine.loop import write_synthesis
+    from . import workflows
     setup = build(scenario)
     _report_findings(setup, args.quiet, force=True)
     update, close = _progress_bar(setup.steps, args.quiet)
     try:
-        path = write_synthesis(setup, Path(args.synthesize), args.overwrite, update)
+        path = workflows.synthesize(setup, Path(args.synthesize), args.overwrite, update)
     finally:
         close()
     _say(f"wrote {path} (exact synthesis)")

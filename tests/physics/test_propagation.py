@@ -8,7 +8,7 @@ from sojourn.model import packets
 from sojourn.build import build
 from sojourn.model.grid import Grid
 from sojourn.engine.propagate import ORDER, Propagator
-from sojourn.engine.loop import Sampler
+from sojourn.engine.sampler import Sampler
 from sojourn.store.runfile import RunFile
 from sojourn.config.scenario import loads
 

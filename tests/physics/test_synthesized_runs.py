@@ -7,7 +7,7 @@ import pytest
 from sojourn.build import build
 from sojourn.cli import main
 from sojourn.measure.core import measure_delays
-from sojourn.engine.loop import write_synthesis
+from sojourn.workflows import synthesize as write_synthesis
 from sojourn.store.runfile import RunFile
 from sojourn.config.scenario import load
 

@@ -33,8 +33,6 @@ from __future__ import annotations
 
 import json
 import math
-import shutil
-import tempfile
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Optional
@@ -53,7 +51,6 @@ ABOVE_TOP_WARN = 1e-3   # share of the packet above the barrier top that calls f
 OUT_OF_BAND_WARN = 1e-6  # probability outside the packet's k-band that calls for a warning
 LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
 PASSAGE_GAP = 4.0       # widths between the incident and reflected passages at a detector
-SAFETY = 1.25           # factor on the Richardson estimate (grid convergence index, Roache 1994)
 CHANNEL_MIN = 1e-6      # outgoing probability below which a channel is not measured
 
 
@@ -697,88 +694,3 @@ def save_report(path, report: DelayReport) -> None:
             group.attrs["result"] = json.dumps(report.to_dict())
     except OSError as exc:
         raise RunFileError(f"{path}: cannot write the analysis into it ({exc})") from None
-
-
-# ----------------------------------------------------------------------------------------
-# Convergence
-
-
-@dataclass
-class Convergence:
-    """How far each delay moves on a finer grid (2N points, Δt/4: Δt·E_max
-    fixed) and at half the time step, and the Richardson error bars."""
-
-    report: DelayReport                 # the base run, with `error` filled in
-    finer_grid: DelayReport
-    half_step: DelayReport
-    moves: dict                         # "channel.method" -> {"grid": Δ, "time": Δ, "error": e}
-
-
-def _richardson(base, finer, order_ratio):
-    """Error estimate of `base` from a run whose error is `order_ratio` times smaller."""
-    return abs(base - finer) * order_ratio / (order_ratio - 1)
-
-
-def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
-           keep: Optional[Path] = None) -> Convergence:
-    """Rerun the scenario of a run file on a 2× finer grid with Δt/4 and at Δt/2
-    (into a temporary folder, or `keep`), measure each, and attach to every
-    delay of the base report the Richardson estimate of its remaining error.
-
-    The finer-grid rerun costs about 8×, the half-step rerun 2× the base run.
-    """
-    from ..build import build
-    from ..engine.loop import execute
-    say = progress or (lambda message: None)
-    path = Path(runfile_or_path.path if isinstance(runfile_or_path, RunFile) else runfile_or_path)
-    base = measure_delays(runfile_or_path)
-    with RunFile(path) as rf:
-        scenario = rf.scenario()
-        dt = float(rf.attrs["dt"])
-        scheme = str(rf.attrs["scheme"])
-    points = scenario.grid.points
-    order = 4 if scheme == "yoshida4" else 2
-    folder = Path(keep) if keep else Path(tempfile.mkdtemp(prefix="sojourn-verify-"))
-    folder.mkdir(parents=True, exist_ok=True)
-    try:
-        reruns = {}
-        plans = {
-            "grid": ({"grid.points": 2 * points, "evolve.dt": dt / 4},
-                     f"rerun 1/2: {2 * points} points, dt = {dt / 4:.4g} (about 8× the base run)"),
-            "time": ({"evolve.dt": dt / 2},
-                     f"rerun 2/2: dt = {dt / 2:.4g} (about 2× the base run)"),
-        }
-        for name, (changes, message) in plans.items():
-            say(message)
-            sc = with_changes(scenario, changes)
-            out = folder / f"{path.stem}-verify-{name}.h5"
-            if out.exists():
-                raise MeasureError(f"{out} exists; it is never overwritten")
-            reruns[name] = measure_delays(execute(build(sc), out))
-        moves = {}
-        for channel in ("reflection", "transmission"):
-            b = getattr(base, channel)
-            if b is None:
-                continue
-            for method, result in b.measured.items():
-                values = {}
-                for name, rep in reruns.items():
-                    other = getattr(rep, channel)
-                    if other is not None and method in other.measured \
-                            and other.measured[method].delay is not None:
-                        values[name] = other.measured[method].delay
-                if result.delay is None or not values:
-                    continue
-                # the grid rerun halves Δx and quarters Δt: both O(h²) terms fall 4×
-                err_grid = _richardson(result.delay, values["grid"], 4.0) if "grid" in values else 0.0
-                err_time = _richardson(result.delay, values["time"], 2.0 ** order) \
-                    if "time" in values else 0.0
-                result.error = SAFETY * max(err_grid, err_time)
-                moves[f"{channel}.{method}"] = {
-                    "grid": values.get("grid", math.nan) - result.delay,
-                    "time": values.get("time", math.nan) - result.delay,
-                    "error": result.error}
-        return Convergence(base, reruns["grid"], reruns["time"], moves)
-    finally:
-        if keep is None:
-            shutil.rmtree(folder, ignore_errors=True)

@@ -36,6 +36,8 @@ from typing import Any, Callable, Optional
 import yaml
 
 from ..config.scenario import Scenario, _model_at, format_path, load, loads, parse_yaml, read_text, with_changes
+from .. import workflows
+from ..build import build
 from ..errors import RunFileError, SojournError, SweepError, one_line
 
 SWEEP_KEYS = ("base", "vary", "pairing", "output")
@@ -245,34 +247,12 @@ def run_point(task: dict) -> dict:
 
 
 def _run_and_measure(task: dict, folder: Path, name: str) -> dict:
-    from ..measure import core as measure
-    from ..build import build
-    from ..store.runfile import RunFile, RunFileError
-    from ..engine.loop import execute
-
     scenario = loads(task["text"], task["source"], Path(task["base_dir"]))
-    path = folder / f"{name}.h5"
-    complete = False
-    if path.exists():
-        try:
-            with RunFile(path) as rf:
-                complete = rf.status == "complete" and rf.attrs.get("scenario") == scenario.text
-        except RunFileError:
-            complete = False
-    if not complete:
-        setup = build(scenario)
-        errors = setup.errors()
-        if errors:
-            raise SweepError(f"{name}: {errors[0]}")
-        partial = path.with_name(path.name + ".partial")
-        try:
-            path = execute(setup, path, overwrite=True, resume=partial.exists())
-        except RunFileError:     # a partial file that cannot be resumed: start again
-            path = execute(setup, path, overwrite=True)
-    if task["verify"]:
-        report = measure.verify(path).report
-    else:
-        report = measure.measure_delays(path)
+    setup = build(scenario)
+    errors = setup.errors()
+    if errors:
+        raise SweepError(f"{name}: {errors[0]}")
+    path, report = workflows.run_and_measure(setup, folder / f"{name}.h5", task["verify"])
     return {"measured": _report_values(report, path, scenario), "warnings": list(report.warnings)}
 
 

@@ -1,0 +1,85 @@
+"""What a run observes between and at its recordings: detector flux, region
+probability, norm and absorption (sampled), and the moments (recorded)."""
+from __future__ import annotations
+
+import numpy as np
+
+from . import observables as obs
+from .fft import FFTPair
+
+
+class Sampler:
+    """Collects detector flux, region probability, norm and absorption between
+    recordings; called by the propagator every `sample_steps` steps."""
+
+    def __init__(self, setup: Setup, raw_absorbed=(0.0, 0.0)):
+        g = setup.grid
+        self.dt, self.every = setup.dt, setup.sample_steps
+        self.dx = g.dx
+        self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
+        self.region = obs.window(g, *setup.region) if setup.region else None
+        self.left = obs.window(g, g.left - g.dx, setup.reference)
+        self.right = obs.window(g, setup.reference, g.right + g.dx)
+        self.layers = []
+        if setup.W is not None:
+            half = g.points // 2
+            for sl in (slice(0, half), slice(half, g.points)):
+                w = setup.W[sl]
+                nz = np.nonzero(w)[0]
+                if nz.size:
+                    sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
+                self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
+        self.raw_absorbed = list(raw_absorbed)
+        self.start_step = 0
+        self._spectrum = FFTPair(g.points)  # a planned transform for ⟨p⟩ and ⟨H⟩
+        self.reset()
+
+    def _transform(self, psi: np.ndarray) -> np.ndarray:
+        self._spectrum.buffer[:] = psi
+        self._spectrum.forward()
+        return self._spectrum.buffer
+
+    def reset(self) -> None:
+        self.t, self.flux, self.p_region, self.norm = [], [], [], []
+        self.absorbed = ([], [])
+
+    def take(self, psi: np.ndarray, t: float) -> None:
+        self.t.append(t)
+        self.flux.append(self.detectors.flux(psi) if len(self.detectors) else [0.0])
+        self.p_region.append(obs.probability(psi, self.dx, self.region))
+        total = obs.norm(psi, self.dx)
+        self.norm.append(total)
+        for side, (sl, root_rate) in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled
+            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[sl]) * self.dx * self.dt \
+                * self.every
+        for side, value in enumerate(self.split_absorbed(total)):
+            self.absorbed[side].append(value)
+
+    def split_absorbed(self, norm: float) -> tuple[float, float]:
+        """Absorbed probability per side: the exact total 1 - norm, shared as the
+        sampled integrals ∫2W|ψ|²/ħ dt of each layer."""
+        raw = sum(self.raw_absorbed)
+        if raw <= 0:
+            return 0.0, 0.0
+        lost = max(1.0 - norm, 0.0)
+        return lost * self.raw_absorbed[0] / raw, lost * self.raw_absorbed[1] / raw
+
+    def __call__(self, psi: np.ndarray, step: int) -> None:
+        self.take(psi, (self.start_step + step) * self.dt)
+
+    def batch(self) -> dict:
+        out = {"t": np.array(self.t), "flux": np.array(self.flux, dtype=float).reshape(len(self.t), max(len(self.detectors), 1)),
+               "P_region": np.array(self.p_region), "norm": np.array(self.norm),
+               "absorbed_left": np.array(self.absorbed[0]),
+               "absorbed_right": np.array(self.absorbed[1])}
+        self.reset()
+        return out
+
+    def recording(self, psi, setup: Setup) -> dict:
+        values = obs.moments(psi, setup.grid, setup.V, setup.hbar, setup.mass, self._transform)
+        values["P_left"] = obs.probability(psi, self.dx, self.left)
+        values["P_right"] = obs.probability(psi, self.dx, self.right)
+        values["P_region"] = obs.probability(psi, self.dx, self.region)
+        a_left, a_right = self.split_absorbed(values["norm"])
+        values["absorbed_left"], values["absorbed_right"] = a_left, a_right
+        return values

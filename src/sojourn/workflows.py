@@ -1,0 +1,193 @@
+"""The only code that chains stages: load → build → guard → evolve → store → measure.
+
+Commands, sweeps and the Python API call these; no stage calls another stage
+backwards. Each returns what it made (a run file's path, a report)."""
+from __future__ import annotations
+
+import math
+import shutil
+import tempfile
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Callable, Optional
+
+import numpy as np
+
+from .build import Setup, build
+from .config.scenario import load, with_changes
+from .engine.fft import backend_name
+from .engine.loop import evolve
+from .engine.propagate import ORDER
+from .engine.sampler import Sampler
+from .errors import MeasureError, RunFileError
+from .measure.core import DelayReport, measure_delays
+from .store.paths import output_path
+from .store.runfile import RunFile, RunWriter
+from .theory.solver import synthesize as synthesize_states
+
+SAFETY = 1.25   # factor on the Richardson estimate (grid convergence index, Roache 1994)
+
+
+def prepare(path) -> Setup:
+    """Read a scenario file and make it concrete (the guards' findings in `Setup.findings`)."""
+    return build(load(path))
+
+
+def run(setup: Setup, output: Optional[Path] = None, overwrite: bool = False,
+        resume: bool = False, progress: Optional[Callable[[int, int], None]] = None) -> Path:
+    """Run a built scenario into its run file (or continue a `.partial` one with
+    `resume`); returns the final path. The file is renamed from `.partial` only
+    when the run is complete."""
+    sc = setup.scenario
+    final = Path(output) if output else output_path(sc)
+    if resume:
+        writer, state = RunWriter.open_resume(final, sc.text)
+    else:
+        writer = RunWriter.open_new(final, setup, backend_name(), overwrite, sc.record.compress)
+        state = None
+    evolve(setup, writer, state, progress)
+    return writer.finish()
+
+
+def run_and_measure(setup: Setup, output: Path,
+                    with_error_bars: bool = False) -> tuple[Path, DelayReport]:
+    """Run into `output` (continuing a `.partial` file when one is there,
+    skipping a complete run of the same scenario) and measure the delays; with
+    `with_error_bars`, through `verify`."""
+    complete = False
+    if output.exists():
+        try:
+            with RunFile(output) as rf:
+                complete = rf.status == "complete" and rf.attrs.get("scenario") == setup.scenario.text
+        except RunFileError:
+            complete = False
+    if not complete:
+        partial = output.with_name(output.name + ".partial")
+        try:
+            output = run(setup, output, overwrite=True, resume=partial.exists())
+        except RunFileError:     # a partial file that cannot be resumed: start again
+            output = run(setup, output, overwrite=True)
+    report = verify(output).report if with_error_bars else measure_delays(output)
+    return output, report
+
+
+def synthesize(setup: Setup, output: Path, overwrite: bool = False,
+               progress: Optional[Callable[[int, int], None]] = None) -> Path:
+    """Write the exact solution built from stationary states (theory.synthesize)
+    as a run file in the same layout, at the times a run would record and
+    sample, so that every other command works on it. No absorber, norm 1."""
+    sc = setup.scenario
+    if setup.W is not None:
+        setup = replace(setup, W=None)
+    writer = RunWriter.open_new(Path(output), setup, "exact synthesis (theory)", overwrite,
+                                sc.record.compress)
+    sampler = Sampler(setup)
+    g = setup.grid
+    nodes = sorted({i for sl in sampler.detectors._slices for i in range(sl.start, sl.stop)}
+                   | (set(range(sampler.region.cells.start, sampler.region.cells.stop)) if sampler.region
+                      else set()))
+    nodes = np.array(nodes, dtype=int)
+    recordings = list(range(0, setup.steps, setup.record_steps)) + [setup.steps]
+    try:
+        previous = None
+        for step in recordings:
+            # the samples a run takes up to this recording: t = 0 first, then every
+            # sample_steps steps after the previous recording
+            sampled = [0] if previous is None else list(
+                range(previous + setup.sample_steps, step + 1, setup.sample_steps))
+            times = np.array(sampled, dtype=float) * setup.dt
+            full = np.zeros(g.points, complex)
+            for tk, values in zip(times, synthesize_states(sc, times, x=g.x[nodes])):
+                full[nodes] = values
+                sampler.take(full, float(tk))
+                sampler.norm[-1] = 1.0
+            psi = synthesize_states(sc, [step * setup.dt], x=g.x)[0]
+            writer.snapshot(step, step * setup.dt, psi, sampler.recording(psi, setup),
+                            sampler.batch(), (0.0, 0.0))
+            if progress:
+                progress(step, setup.steps)
+            previous = step
+    except BaseException:
+        writer.close("failed")
+        raise
+    return writer.finish()
+
+
+
+@dataclass
+class Convergence:
+    """How far each delay moves on a finer grid (2N points, Δt/4: Δt·E_max
+    fixed) and at half the time step, and the Richardson error bars."""
+
+    report: DelayReport                 # the base run, with `error` filled in
+    finer_grid: DelayReport
+    half_step: DelayReport
+    moves: dict                         # "channel.method" -> {"grid": Δ, "time": Δ, "error": e}
+
+
+def _richardson(base, finer, order_ratio):
+    """Error estimate of `base` from a run whose error is `order_ratio` times smaller."""
+    return abs(base - finer) * order_ratio / (order_ratio - 1)
+
+
+def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
+           keep: Optional[Path] = None) -> Convergence:
+    """Rerun the scenario of a run file on a 2× finer grid with Δt/4 and at Δt/2
+    (into a temporary folder, or `keep`), measure each, and attach to every
+    delay of the base report the Richardson estimate of its remaining error.
+
+    The finer-grid rerun costs about 8×, the half-step rerun 2× the base run.
+    """
+    say = progress or (lambda message: None)
+    path = Path(runfile_or_path.path if isinstance(runfile_or_path, RunFile) else runfile_or_path)
+    base = measure_delays(runfile_or_path)
+    with RunFile(path) as rf:
+        scenario = rf.scenario()
+        dt = float(rf.attrs["dt"])
+        scheme = str(rf.attrs["scheme"])
+    points = scenario.grid.points
+    order = ORDER[scheme]
+    folder = Path(keep) if keep else Path(tempfile.mkdtemp(prefix="sojourn-verify-"))
+    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        reruns = {}
+        plans = {
+            "grid": ({"grid.points": 2 * points, "evolve.dt": dt / 4},
+                     f"rerun 1/2: {2 * points} points, dt = {dt / 4:.4g} (about 8× the base run)"),
+            "time": ({"evolve.dt": dt / 2},
+                     f"rerun 2/2: dt = {dt / 2:.4g} (about 2× the base run)"),
+        }
+        for name, (changes, message) in plans.items():
+            say(message)
+            sc = with_changes(scenario, changes)
+            out = folder / f"{path.stem}-verify-{name}.h5"
+            if out.exists():
+                raise MeasureError(f"{out} exists; it is never overwritten")
+            reruns[name] = measure_delays(run(build(sc), out))
+        moves = {}
+        for channel in ("reflection", "transmission"):
+            b = getattr(base, channel)
+            if b is None:
+                continue
+            for method, result in b.measured.items():
+                values = {}
+                for name, rep in reruns.items():
+                    other = getattr(rep, channel)
+                    if other is not None and method in other.measured \
+                            and other.measured[method].delay is not None:
+                        values[name] = other.measured[method].delay
+                if result.delay is None or not values:
+                    continue
+                # the grid rerun halves Δx and quarters Δt: both O(h²) terms fall 4×
+                err_grid = _richardson(result.delay, values["grid"], 4.0) if "grid" in values else 0.0
+                err_time = _richardson(result.delay, values["time"], 2.0 ** order) \
+                    if "time" in values else 0.0
+                result.error = SAFETY * max(err_grid, err_time)
+                moves[f"{channel}.{method}"] = {
+                    "grid": values.get("grid", math.nan) - result.delay,
+                    "time": values.get("time", math.nan) - result.delay,
+                    "error": result.error}
+        return Convergence(base, reruns["grid"], reruns["time"], moves)
+    finally:
+        if keep is None:
+            shutil.rmtree(folder, ignore_errors=True)
