@@ -284,7 +284,7 @@ def test_self_referring_and_exponential_aliases_are_cheap():
     for i in range(1, 11):
         levels.append(f"&l{i} [" + ", ".join([f"*l{i - 1}"] * 10) + "]")
     text = "units: atomic\ntitle: [" + ", ".join(levels) + "]\n"
-    with pytest.raises(ScenarioError, match="s.yaml:2: title: must be text") as info:
+    with pytest.raises(ScenarioError, match="s.yaml:1: the aliases .* expand to more than") as info:
         loads(text, "s.yaml")
     assert len(str(info.value)) < 300
 
@@ -298,7 +298,7 @@ def test_a_key_given_twice_is_refused():
 def test_code_tags_are_refused_without_running(tmp_path):
     marker = tmp_path / "ran"
     text = f"!!python/object/apply:os.system ['touch {marker}']\n"
-    with pytest.raises(ScenarioError, match="not valid YAML"):
+    with pytest.raises(ScenarioError, match="explicit YAML tags"):
         loads(text, "s.yaml")
     assert not marker.exists()
 

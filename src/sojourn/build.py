@@ -174,7 +174,7 @@ def _build(scenario: Scenario) -> Setup:
     record_steps = min(steps, max(1, int(round(every / dt))))
     passage = info.width / max(abs(info.group_velocity), 1e-300)
     sample_steps = scenario.record.sample_steps
-    if "sample_steps" not in scenario.record.model_fields_set:
+    if sample_steps is None:
         # 50 samples per temporal width of a passage: the trapezoid rule is then
         # exact to far below the delays' precision for these smooth signals
         sample_steps = max(1, min(record_steps, int(passage / 50 / dt)))

@@ -18,10 +18,8 @@ from pydantic import (BaseModel, BeforeValidator, ConfigDict, Discriminator, Fie
 
 from ..model import potentials as pot
 from ..model.units import UnitSystem, get as get_units
-from ..errors import ScenarioError, one_line
-
-
-
+from ..errors import ScenarioError
+from .yamlread import format_path, parse_yaml, read_text
 
 
 
@@ -81,8 +79,9 @@ class RecordSpec(_Strict):
     every: Optional[float] = Field(default=None, gt=0)
     output: Optional[str] = None
     compress: bool = False
-    sample_steps: int = Field(default=1, ge=1, le=1000,
-                              description="steps between flux/region samples")
+    sample_steps: Optional[int] = Field(default=None, ge=1, le=1000,
+                                        description="steps between flux/region samples "
+                                                    "(default: 50 per packet passage)")
 
 
 class MeasureSpec(_Strict):
@@ -92,6 +91,8 @@ class MeasureSpec(_Strict):
 
 
 def _term_kind(value: Any) -> Optional[str]:
+    if isinstance(value, BaseModel):   # serialising: the item model's one field is its kind
+        return next(iter(type(value).model_fields))
     if isinstance(value, dict) and len(value) == 1:
         key = next(iter(value))
         return key if key in pot.TERMS else None
@@ -156,100 +157,6 @@ class Scenario(_Strict):
         return Path(self.source).stem if self.source else "scenario"
 
 
-# ----------------------------------------------------------------------------------------
-# Loading with line numbers
-
-
-class _LineLoader(yaml.SafeLoader):
-    """Safe loader that remembers the line of every key and list item."""
-
-
-class _Duplicate(Exception):
-    def __init__(self, path, line):
-        self.path, self.line = path, line
-
-
-def _compose_lines(node, path, lines, seen=None):
-    """Record the line of every key; visit each node once, so that aliases (which
-    share nodes, possibly in a cycle) cost nothing; refuse a key given twice."""
-    seen = set() if seen is None else seen
-    lines.setdefault(path, node.start_mark.line + 1)
-    if id(node) in seen:
-        return
-    seen.add(id(node))
-    if isinstance(node, yaml.MappingNode):
-        keys = set()
-        for key_node, value_node in node.value:
-            key = key_node.value
-            if isinstance(key, str):
-                if key in keys and key != "<<":
-                    raise _Duplicate(path + (key,), key_node.start_mark.line + 1)
-                keys.add(key)
-            lines[path + (key,)] = key_node.start_mark.line + 1
-            _compose_lines(value_node, path + (key,), lines, seen)
-    elif isinstance(node, yaml.SequenceNode):
-        for i, item in enumerate(node.value):
-            lines[path + (i,)] = item.start_mark.line + 1
-            _compose_lines(item, path + (i,), lines, seen)
-
-
-def _cyclic(data, active=None, done=None) -> bool:
-    """True if the data refer to themselves (a YAML alias inside its own anchor).
-    Each shared list or mapping is explored once, so aliases cost nothing."""
-    active = set() if active is None else active
-    done = set() if done is None else done
-    if not isinstance(data, (dict, list)) or id(data) in done:
-        return False
-    if id(data) in active:
-        return True
-    active.add(id(data))
-    items = data.values() if isinstance(data, dict) else data
-    found = any(_cyclic(item, active, done) for item in items)
-    active.discard(id(data))
-    done.add(id(data))
-    return found
-
-
-
-def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
-    """YAML text → (plain data, {key path: line}). Safe loader only."""
-    try:
-        node = yaml.compose(text, Loader=_LineLoader)
-        data = yaml.load(text, Loader=yaml.SafeLoader)
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        line = mark.line + 1 if mark else 1
-        raise ScenarioError(f"{source}:{line}: not valid YAML: "
-                            f"{one_line(exc.problem or exc)}") from None
-    except yaml.YAMLError as exc:
-        raise ScenarioError(f"{source}:1: not valid YAML: {one_line(exc)}") from None
-    except (RecursionError, MemoryError):
-        raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
-    lines: dict = {}
-    try:
-        if node is not None:
-            _compose_lines(node, (), lines)
-        cyclic = _cyclic(data)
-    except _Duplicate as dup:
-        raise ScenarioError(f"{source}:{dup.line}: {format_path(dup.path)}: key given twice "
-                            "(keep one)") from None
-    except RecursionError:
-        raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
-    if cyclic:
-        raise ScenarioError(f"{source}:1: an alias (*name) refers to itself; a scenario "
-                            "cannot contain itself") from None
-    return data, lines
-
-
-def format_path(loc) -> str:
-    out = ""
-    for part in loc:
-        if isinstance(part, str) and not (part.isprintable() and part.strip() == part and part):
-            part = repr(part)   # a key with a newline or blanks, shown so it can be seen
-        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
-    return out or "(top level)"
-
-
 def _clean_loc(loc: tuple, data: Any) -> tuple:
     """Drop pydantic's union tags and wrapper names so that loc follows the YAML."""
     out, node = [], data
@@ -280,7 +187,7 @@ def _line_for(loc: tuple, lines: dict) -> int:
     return 1
 
 
-def _model_at(loc: tuple):
+def model_at(loc: tuple):
     """The pydantic model class that owns the last key of loc (for suggestions)."""
     model: Any = Scenario
     for part in loc[:-1]:
@@ -315,7 +222,7 @@ def _describe(error: dict, loc: tuple) -> str:
     got = error.get("input")
     shown = _short(got)
     if kind == "extra_forbidden":
-        model = _model_at(loc)
+        model = model_at(loc)
         valid = list(model.model_fields) if model is not None else []
         valid = [v for v in valid if v not in ("source", "text")]
         close = difflib.get_close_matches(str(loc[-1]), valid, n=1)
@@ -327,7 +234,7 @@ def _describe(error: dict, loc: tuple) -> str:
     if kind == "union_tag_invalid" or kind == "union_tag_not_found":
         names = ", ".join(pot.TERMS)
         if isinstance(got, dict) and len(got) == 1:
-            close = difflib.get_close_matches(next(iter(got)), list(pot.TERMS), n=1)
+            close = difflib.get_close_matches(str(next(iter(got))), list(pot.TERMS), n=1)
             hint = f"; did you mean '{close[0]}'?" if close else ""
             return f"unknown potential term {_short(next(iter(got)))}{hint} (known: {names})"
         return f"each potential term is a one-key mapping like 'step: {{...}}' (known: {names})"
@@ -387,15 +294,6 @@ def loads(text: str, source: str = "<scenario>", base_dir: Optional[Path] = None
     """Scenario from YAML text."""
     data, lines = parse_yaml(text, source)
     return validate(data, source, lines, base_dir, text)
-
-
-def read_text(path: Path, what: str = "scenario", error=ScenarioError) -> str:
-    """A YAML file's text, or `error` naming the file and why it cannot be read."""
-    try:
-        return path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise error(f"{path}: cannot read the {what} file ({exc.__class__.__name__}: "
-                    f"{getattr(exc, 'strerror', None) or exc})") from None
 
 
 def load(path) -> Scenario:

@@ -35,7 +35,7 @@ from typing import Any, Callable, Optional
 
 import yaml
 
-from ..config.scenario import Scenario, _model_at, format_path, load, loads, parse_yaml, read_text, with_changes
+from ..config.scenario import Scenario, model_at, format_path, load, loads, parse_yaml, read_text, with_changes
 from .. import workflows
 from ..build import build
 from ..errors import RunFileError, SojournError, SweepError, one_line
@@ -186,7 +186,7 @@ def _path_problem(data: Any, dotted: str) -> Optional[str]:
             if part in node:
                 node = node[part]
                 continue
-            model = _model_at(tuple(parts[:depth + 1]))
+            model = model_at(tuple(parts[:depth + 1]))
             known = list(getattr(model, "model_fields", {})) if model is not None else []
             known = [k for k in known if k not in ("source", "text")]
             if part in known:      # an optional key the base leaves to its default
