@@ -213,6 +213,8 @@ def _build(scenario: Scenario) -> Setup:
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
                   sample_steps, detectors, reference, region, findings)
     guard(setup, limit, absorber_width)
+    for finding in findings:
+        finding.line = scenario.line_of(finding.key)
     return setup
 
 

@@ -53,7 +53,7 @@ def _report_findings(setup, quiet=False, force=False, stream=None) -> None:
     errors = [f for f in setup.errors() if not (force and f.forceable)]
     if errors:
         source = setup.scenario.source or "scenario"
-        raise SojournError(f"{source}: {errors[0]}" + (
+        raise SojournError(errors[0].located(source) + (
             " (--force overrides this)" if errors[0].forceable else ""))
     for f in setup.errors():
         print(f"sojourn: warning (forced): {f}", file=stream)

@@ -9,13 +9,21 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Optional
 
-from .errors import ScenarioError
+import numpy as np
+
+from .errors import ScenarioError, SojournError
 from .model import packets
+from .model.potentials import Potential
+from .model.terms import Step
+from .theory.solver import scatter
 from .store.paths import output_path
 
 STATE_COPIES = 8          # complex arrays of N the propagator and the recorder hold
 RESOLUTION_MARGIN = 2.0   # k_max ≥ margin·(|k₀| + 6σ_k)  (common practice, no source)
 DEFAULT_DT_PHASE = math.pi / 2  # default Δt·(E_max + ΔV)/ħ, well inside the limit of 2π
+RENDERING_WARN = 1e-3     # the relative change of R, T or a delay a resolved run aims at
+RENDERING_WARN_LEVEL = 1e-2  # ... and the one that calls for a warning
+MAX_RENDERED_CELLS = 20000  # larger supports are not re-solved cell by cell
 
 
 def time_step_limit(kinetic_max: float, v_range: float, hbar: float) -> float:
@@ -32,8 +40,14 @@ class Finding:
     message: str
     forceable: bool = False
 
+    line: Optional[int] = None   # the scenario line of `key`, filled in by build
+
     def __str__(self) -> str:
         return f"{self.key}: {self.message}" if self.key else self.message
+
+    def located(self, source: str) -> str:
+        """The finding as an error line: file:line: key: message."""
+        return f"{source}:{self.line}: {self}" if self.line else f"{source}: {self}"
 
 
 def refuse_oversized(scenario) -> None:
@@ -49,11 +63,18 @@ MAX_STEPS = 10 ** 12   # about a year of steps at a microsecond each (common pra
 
 
 def refuse_endless(scenario, steps: float, dt: float) -> None:
-    """Refuse a run that could never finish, before any loop is planned."""
+    """Refuse a run that could never finish, before any loop is planned (naming
+    the mass when its scale, not the time step, is the likely cause)."""
     if not math.isfinite(steps) or steps > MAX_STEPS:
-        raise ScenarioError(f"{scenario.source}: evolve.dt: duration {scenario.evolve.duration:g} "
-                            f"at dt = {dt:g} is {steps:.3g} steps, more than {MAX_STEPS:.0e}; "
-                            "use a larger dt or a shorter duration")
+        if not MASS_RANGE[0] <= scenario.mass <= MASS_RANGE[1]:
+            raise ScenarioError(f"{scenario.source}:{scenario.line_of('mass') or 1}: mass: "
+                                f"{scenario.mass:g} electron masses makes the run {steps:.3g} "
+                                f"steps long; `mass` is in electron masses (expected "
+                                f"{MASS_RANGE[0]:g}…{MASS_RANGE[1]:g}), not kilograms")
+        line = scenario.line_of("evolve.dt") or scenario.line_of("evolve") or 1
+        raise ScenarioError(f"{scenario.source}:{line}: evolve.dt: duration "
+                            f"{scenario.evolve.duration:g} at dt = {dt:g} is {steps:.3g} steps, "
+                            f"more than {MAX_STEPS:.0e}; use a larger dt or a shorter duration")
 
 
 def guard(s, limit: float, absorber_width: float) -> None:
@@ -62,13 +83,23 @@ def guard(s, limit: float, absorber_width: float) -> None:
     info, grid, hbar, mass = s.packet, s.grid, s.hbar, s.mass
     units = s.scenario.unit_system
 
-    # resolution of the packet's momentum content
-    needed = RESOLUTION_MARGIN * (abs(info.k0) + 6 * info.sigma_k)
+    # resolution of the packet's momentum content, where V is lowest (the local k is largest)
+    k_band = abs(info.k0) + 6 * info.sigma_k
+    finite_V = not any(f.key == "potential" and f.level == "error" for f in s.findings)
+    drop = max(info.level - float(np.min(s.V)), 0.0) \
+        if finite_V and not s.potential.confining else 0.0
+    k_local = math.sqrt(k_band ** 2 + 2 * mass * drop / hbar ** 2)
+    needed = RESOLUTION_MARGIN * k_local
     if grid.k_max < needed:
         points = int(2 ** math.ceil(math.log2(grid.length * needed / math.pi)))
+        where = "" if drop == 0 else f" where V is lowest ({float(np.min(s.V)):g})"
         add(Finding("error", "grid.points",
                     f"grid resolution too coarse: k_max = π/dx = {grid.k_max:.4g} but the packet "
-                    f"needs ≥ {needed:.4g} (2·(|k₀| + 6σ_k)); use points ≥ {points}", forceable=True))
+                    f"needs ≥ {needed:.4g}{where} (2·local k at |k₀| + 6σ_k); use points ≥ "
+                    f"{points}", forceable=True))
+    if finite_V:
+        _potential_features(s, add)
+    _scale_hints(s, add)
     if info.k_ratio < 6 and not s.potential.confining:
         add(Finding("warning", "packet.width",
                     f"k₀/σ_k = {info.k_ratio:.3g} < 6: the packet has content near k = 0, where "
@@ -188,3 +219,125 @@ def _size(nbytes: float) -> str:
             return f"{nbytes:.3g} {unit}"
         nbytes /= 1024
     return f"{nbytes:.3g} PiB"
+
+
+def rendered_potential(x: np.ndarray, V: np.ndarray, dx: float, support, mass: float):
+    """The potential as the grid holds it: a staircase of the grid values, one
+    constant per cell, over the support and two cells either side (outside it
+    V is at its levels). Returns (Potential, left level), or None if too long."""
+    a, b = support
+    inside = np.nonzero((x > a - 2.5 * dx) & (x < b + 2.5 * dx))[0]
+    if inside.size == 0 or inside.size > MAX_RENDERED_CELLS:
+        return None
+    values = V[inside]
+    left = float(V[max(inside[0] - 1, 0)])
+    edges = x[inside] - dx / 2
+    jumps = np.diff(np.concatenate(([left], values)))
+    steps = [Step(at=float(e), height=float(h)) for e, h in zip(edges, jumps) if h != 0.0]
+    return Potential(steps, mass=mass), left
+
+
+def rendering_error(s) -> Optional[dict]:
+    """How much the packet's R, T and flux-weighted delays ⟨τ_R⟩, ⟨τ_T⟩ change
+    when the stationary theory is solved on the grid's rendering of V instead
+    of the exact V: an estimate of the part of a run's error that comes from
+    the potential's discretisation (it falls as Δx² at jumps; the spectral
+    grid's own error at a jump is not in it). Relative changes (delays
+    relative to |τ| + 1 % of a passage time). None where it cannot be estimated
+    (a trap, no support, a support of too many cells, a delta term)."""
+    potential, info = s.potential, s.packet
+    support = potential.support()
+    if potential.confining or support is None or potential.deltas():
+        return None
+    rendered = rendered_potential(s.grid.x, s.V, s.grid.dx, support, s.mass)
+    if rendered is None:
+        return None
+    staircase, left = rendered
+    direction = "right" if info.k0 >= 0 else "left"
+    # the band k₀ ± 6σ_k with Gaussian weights (Gauss–Legendre nodes)
+    nodes, weights = np.polynomial.legendre.leggauss(64)
+    k0 = abs(info.k0)
+    k = k0 + 6 * info.sigma_k * nodes
+    w = weights * np.exp(-0.5 * ((k - k0) / info.sigma_k) ** 2)
+    keep = k > 0.05 * k0
+    energies = info.level + (s.hbar * k[keep]) ** 2 / (2 * s.mass)
+    w = w[keep]
+    inc = potential.levels()[0 if direction == "right" else 1]
+    above = energies > inc
+    energies, w = energies[above], w[above]
+    if energies.size < 4:
+        return None
+    try:
+        exact = scatter(potential, energies, hbar=s.hbar, x_r=s.reference, direction=direction,
+                        dwell=False)
+        grid = scatter(staircase, energies - left, hbar=s.hbar, x_r=s.reference,
+                       x_t=exact.x_t, direction=direction, dwell=False)
+    except (SojournError, ValueError, FloatingPointError):
+        return None
+    scale = info.width / max(abs(info.group_velocity), 1e-300)   # a passage time
+    out = {}
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for name, p_e, p_g, t_e, t_g in (
+                ("R", exact.R, grid.R, exact.delay_reflection, grid.delay_reflection),
+                ("T", exact.T, grid.T, exact.delay_transmission, grid.delay_transmission)):
+            P_e, P_g = float(np.sum(w * p_e)), float(np.sum(w * p_g))
+            if P_e <= 1e-3 * float(np.sum(w)):
+                continue
+            out[name] = abs(P_g - P_e) / P_e
+            ok = np.isfinite(t_e) & np.isfinite(t_g)
+            if np.all(ok):
+                tau_e = float(np.sum(w * p_e * t_e)) / P_e
+                tau_g = float(np.sum(w * p_g * t_g)) / max(P_g, 1e-300)
+                out["tau_" + name] = abs(tau_g - tau_e) / (abs(tau_e) + 0.01 * scale)
+    return out or None
+
+
+def _potential_features(s, add) -> None:
+    """The potential's thinnest feature and the error its grid rendering causes."""
+    thin = s.potential.thinnest_feature()
+    if thin is not None and thin < 2 * s.grid.dx:
+        add(Finding("warning", "grid.points",
+                    f"the potential has a feature {thin:.3g} wide, less than two grid cells "
+                    f"(dx = {s.grid.dx:.3g}): the grid blurs it"))
+    estimate = rendering_error(s)
+    if not estimate:
+        return
+    worst = max(estimate, key=estimate.get)
+    text = ", ".join(f"{name} {value:.1e}" for name, value in estimate.items())
+    if estimate[worst] > RENDERING_WARN_LEVEL:
+        factor = math.sqrt(estimate[worst] / RENDERING_WARN)   # the change falls as Δx²
+        points = int(2 ** math.ceil(math.log2(s.grid.points * factor)))
+        add(Finding("warning", "grid.points",
+                    f"the grid renders the potential coarsely: stationary theory on the grid's V "
+                    f"differs from the exact V by {text} (relative, packet-averaged): the run's "
+                    f"numbers may be off by as much; points ≥ {points} bring it near {RENDERING_WARN:g}"))
+    else:
+        add(Finding("info", "grid.points",
+                    f"the grid's rendering of V changes the packet's {text} (relative)"))
+
+
+MASS_RANGE = (1e-3, 1e5)   # electron masses: an effective mass ... a heavy ion (common practice)
+
+
+def _scale_hints(s, add) -> None:
+    """Numbers whose scale suggests a unit slip (a mass in kg, an energy in meV)."""
+    sc, info = s.scenario, s.packet
+    units = sc.unit_system
+    if not MASS_RANGE[0] <= sc.mass <= MASS_RANGE[1]:
+        add(Finding("warning", "mass",
+                    f"mass {sc.mass:g} is outside {MASS_RANGE[0]:g}…{MASS_RANGE[1]:g} electron "
+                    "masses: `mass` is in electron masses, not kilograms"))
+    v_range = float(np.ptp(s.V))
+    kinetic = info.energy - info.level
+    if v_range > 0 and not s.potential.confining and kinetic > 0:
+        ratio = kinetic / v_range
+        if ratio > 100 or ratio < 1e-3:
+            add(Finding("warning", "packet.energy",
+                        f"the packet's kinetic energy {kinetic:.4g} {units.energy} is "
+                        f"{ratio:.3g}× the potential's range {v_range:.4g} {units.energy}: is it "
+                        f"in {units.energy}, the scenario's energy unit?"))
+    if info.width > s.grid.length / 6:
+        add(Finding("warning", "packet.width",
+                    f"the packet's width {info.width:g} is more than a sixth of the box "
+                    f"({s.grid.length:g} {units.length}): it cannot separate from the potential "
+                    "in this box"))

@@ -7,6 +7,7 @@ path and what was expected, e.g.
 from __future__ import annotations
 
 import difflib
+import functools
 import math
 import reprlib
 from pathlib import Path
@@ -89,6 +90,14 @@ class MeasureSpec(_Strict):
     detectors: Optional[list[float]] = None
     region: Optional[tuple[float, float]] = None
 
+    @field_validator("region")
+    @classmethod
+    def _ordered(cls, region):
+        if region is not None and region[1] < region[0]:
+            raise ValueError(f"must be [start, end] with end ≥ start (got [{region[0]:g}, "
+                             f"{region[1]:g}])")
+        return region
+
 
 def _term_kind(value: Any) -> Optional[str]:
     if isinstance(value, BaseModel):   # serialising: the item model's one field is its kind
@@ -150,11 +159,28 @@ class Scenario(_Strict):
         return [getattr(item, next(iter(type(item).model_fields))) for item in self.potential]
 
     def build_potential(self) -> pot.Potential:
-        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.span)
+        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.span,
+                             spacing=self.grid.dx / 4)
+
+    def line_of(self, dotted: str) -> Optional[int]:
+        """The line of a dotted key (e.g. 'packet.width') in the scenario's text, if known."""
+        if not self.text or not dotted:
+            return None
+        lines = _key_lines(self.text, self.source or "<scenario>")
+        loc = tuple(int(p) if p.isdigit() else p for p in dotted.split("."))
+        for n in range(len(loc), 0, -1):
+            if loc[:n] in lines:
+                return lines[loc[:n]]
+        return None
 
     @property
     def name(self) -> str:
         return Path(self.source).stem if self.source else "scenario"
+
+
+@functools.lru_cache(maxsize=32)
+def _key_lines(text: str, source: str) -> dict:
+    return parse_yaml(text, source)[1]
 
 
 def _clean_loc(loc: tuple, data: Any) -> tuple:
