@@ -357,3 +357,23 @@ def set_path(data: dict, dotted: str, value: Any) -> None:
         node[parts[-1]] = value
     else:
         raise KeyError(dotted)
+
+
+def self_contained(scenario: Scenario) -> Scenario:
+    """The same scenario with every table's data written inline (with the digest
+    of the file it came from): what a run file stores, so that reading the run
+    never depends on a file that may since have changed."""
+    if not any(isinstance(t, pot.Table) and t.file is not None for t in scenario.terms):
+        return scenario
+    data, _ = parse_yaml(scenario.text, scenario.source or "<scenario>") if scenario.text \
+        else (scenario.model_dump(mode="json", exclude_none=True), {})
+    for item, term in zip(data.get("potential") or [], scenario.terms):
+        if isinstance(term, pot.Table) and term.file is not None:
+            item["table"] = term.inline()
+    return validate(data, scenario.source or "<scenario>", {}, None,
+                    yaml.safe_dump(data, sort_keys=False))
+
+
+def table_digests(scenario: Scenario) -> list:
+    """The SHA-256 of each table's source, in term order ('' for inline data without one)."""
+    return [t.digest for t in scenario.terms if isinstance(t, pot.Table)]
