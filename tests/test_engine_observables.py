@@ -44,13 +44,15 @@ def test_detector_nodes_hold_all_it_reads():
     assert np.array_equal(detectors.flux(known), detectors.flux(psi))
 
 
-def test_closing_factor_is_applied_on_the_nodes():
+def test_a_factor_is_folded_into_the_stencils():
     g = Grid(-50.0, 50.0, 512)
     detectors = obs.Detectors(g, [3.3], 1.0, 1.0)
     psi = packets.gaussian(g.x, 0.0, 4.0, 1.0)
     phase = np.exp(-0.01j * g.x ** 2)
-    assert detectors.flux(psi, phase) == pytest.approx(detectors.flux(psi * phase), rel=1e-13)
-    assert detectors.flux(psi, phase)[0] != pytest.approx(detectors.flux(psi)[0], rel=1e-3)
+    closed = detectors.with_factor(phase)
+    assert closed.flux(psi) == pytest.approx(detectors.flux(psi * phase), rel=1e-13)
+    assert closed.flux(psi)[0] != pytest.approx(detectors.flux(psi)[0], rel=1e-3)
+    assert np.array_equal(closed.nodes, detectors.nodes)
 
 
 def test_moments_of_a_gaussian():

@@ -204,12 +204,13 @@ def test_detector_flux_on_a_ramp_is_the_full_step_current():
     prop = Propagator(grid, V, 1.0, 1.0, dt)
     prop.set_state(psi0)
     detector = Detectors(grid, [0.0], 1.0, 1.0)
+    on_buffer = detector.with_factor(prop.closing_kick)   # what the sampler does
     beyond = window(grid, 0.0, grid.right + grid.dx)
     flux, raw, P, rho = {}, {}, {}, {}
 
     def sample(buf, k):
         full = buf * prop.closing_kick
-        flux[k] = detector.flux(buf, prop.closing_kick)[0]
+        flux[k] = on_buffer.flux(buf)[0]
         raw[k] = detector.flux(buf)[0]
         P[k] = probability(full, grid.dx, beyond)
         rho[k] = abs(full[grid.index(0.0)]) ** 2

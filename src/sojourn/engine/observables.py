@@ -5,6 +5,7 @@ Reductions run over all axes of the state, and positions index its last axis,
 so a leading axis (e.g. spinor components) is summed over."""
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import dataclass
 from typing import Optional
@@ -67,16 +68,21 @@ class Detectors:
     def __len__(self) -> int:
         return len(self.positions)
 
-    def flux(self, psi: np.ndarray, closing: Optional[np.ndarray] = None) -> np.ndarray:
-        """The current at each detector. With `closing`, the flux of closing·ψ,
-        the factor applied on the stencil nodes only (how the sampler turns a
-        state half a kick short of a full step into the full-step ψ there)."""
+    def with_factor(self, factor: np.ndarray) -> "Detectors":
+        """The same detectors reading factor·ψ instead of ψ (`factor` on the grid):
+        the factor is folded into the stencil weights, so the flux costs the same.
+        (How the sampler reads a state half a kick short of a full step.)"""
+        other = copy.copy(self)
+        other._value = [w * factor[..., sl] for w, sl in zip(self._value, self._slices)]
+        other._slope = [w * factor[..., sl] for w, sl in zip(self._slope, self._slices)]
+        return other
+
+    def flux(self, psi: np.ndarray) -> np.ndarray:
+        """The current at each detector."""
         out = np.empty(len(self.positions))
         one_axis = psi.ndim == 1
         for i, (sl, wv, ws) in enumerate(zip(self._slices, self._value, self._slope)):
             local = psi[sl] if one_axis else psi[..., sl]
-            if closing is not None:
-                local = local * closing[..., sl]
             current = (np.dot(local, wv).conjugate() * np.dot(local, ws)).imag
             out[i] = self.factor * (current if one_axis else current.sum())
         return out
