@@ -188,3 +188,10 @@ def test_a_stop_request_mid_interval_returns_within_two_seconds():
     assert rec.status == "interrupted" and len(rec.checkpoints) == 1
     assert 0 < rec.checkpoints[0][0] < setup.steps // 10
     assert returned - asked_at["t"] < 2.0
+
+
+def test_a_bad_checkpoint_state_is_refused(setup):
+    with pytest.raises(ValueError, match="checkpoint state"):
+        evolve(setup, Recorder(), state={"step": 900, "psi": setup.psi0(), "raw_absorbed": (0, 0)})
+    with pytest.raises(ValueError, match="checkpoint_seconds"):
+        evolve(setup, Recorder(), checkpoint_seconds=0.0)

@@ -35,7 +35,6 @@ try:  # the fast path
     import pyfftw
 except ImportError:  # pragma: no cover - depends on the machine
     pyfftw = None
-import scipy.fft as sfft
 
 THREAD_THRESHOLD = 1 << 16  # below this, a second thread costs more than it gains
 THREADS_VARIABLE = "SOJOURN_FFT_THREADS"
@@ -112,6 +111,7 @@ class ScipyBackend:
         return True
 
     def __init__(self, shape, dtype, threads: int, effort: str, axes):
+        import scipy.fft as sfft   # a third of a second to import: only when used
         self.buffer = buf = np.empty(shape, dtype=dtype)
         self.threads = threads
 

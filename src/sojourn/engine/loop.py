@@ -57,7 +57,7 @@ def evolve(setup, recorder, state: Optional[dict] = None,
     raw_absorbed) to its duration, recording into `recorder` (rules above).
 
     `progress(done_steps, total_steps)` is called after each recording.
-    `stop()` is asked every few milliseconds of run (`Propagator.check_every`
+    `stop()` is asked every 0.01-0.1 s of run (`Propagator.check_every`
     steps); when it says True the current state goes to
     `recorder.checkpoint`, the recorder is closed 'interrupted' and
     KeyboardInterrupt is raised, as on Ctrl-C. With `checkpoint_seconds`, a
@@ -67,11 +67,14 @@ def evolve(setup, recorder, state: Optional[dict] = None,
     """
     if checkpoint_seconds is not None and not checkpoint_seconds > 0:
         raise ValueError(f"checkpoint_seconds must be > 0 (got {checkpoint_seconds!r})")
+    if state is not None and not (set(state) >= {"step", "psi", "raw_absorbed"}
+                                  and 0 <= state["step"] <= setup.steps):
+        raise ValueError("a checkpoint state needs step (within the run), psi and raw_absorbed")
     sc = setup.scenario
-    prop = Propagator(setup.grid, setup.V, setup.hbar, setup.mass, setup.dt, sc.evolve.scheme,
-                      setup.W, single=sc.evolve.precision == "single")
     watch = _Watch(stop, checkpoint_seconds) if (stop or checkpoint_seconds) else None
     try:
+        prop = Propagator(setup.grid, setup.V, setup.hbar, setup.mass, setup.dt,
+                          sc.evolve.scheme, setup.W, single=sc.evolve.precision == "single")
         if state is not None:
             sampler = Sampler(setup, state["raw_absorbed"], prop.closing_kick)
             step = int(state["step"])

@@ -70,7 +70,7 @@ SCHEMES: dict[str, Scheme] = {
     }.items()}
 ORDER = {name: s.order for name, s in SCHEMES.items()}  # name -> order, for readers of the order only
 
-# between checks of a stop request, about this many point-steps (≈ 10-50 ms here)
+# between two checks of a stop request, about this many point-steps (0.01-0.1 s here)
 CHECK_POINT_STEPS = 1 << 21
 
 
