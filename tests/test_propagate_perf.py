@@ -24,7 +24,7 @@ def _plain_steps(g, V, W, psi, dt, scheme, steps):
     triple jump: H. Yoshida, Phys. Lett. A 150, 262 (1990)."""
     U = V - 1j * W
     for _ in range(steps):
-        for w in SCHEMES[scheme]:
+        for w in SCHEMES[scheme].drifts:
             psi = np.exp(-0.5j * U * w * dt) * psi
             psi = np.fft.ifft(np.exp(-0.5j * g.k ** 2 * w * dt) * np.fft.fft(psi))
             psi = np.exp(-0.5j * U * w * dt) * psi

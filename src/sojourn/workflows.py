@@ -83,7 +83,7 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
                                 sc.record.compress)
     sampler = Sampler(setup)
     g = setup.grid
-    nodes = sorted({i for sl in sampler.detectors._slices for i in range(sl.start, sl.stop)}
+    nodes = sorted(set(sampler.detectors.nodes.tolist())
                    | (set(range(sampler.region.cells.start, sampler.region.cells.stop)) if sampler.region
                       else set()))
     nodes = np.array(nodes, dtype=int)

@@ -1,30 +1,99 @@
 """Split-operator propagation (PHYSICS §3).
 
 One Strang step is  K(½) · F⁻¹ D F · K(½)  with the kick K(c) = exp(-i(V - iW)cΔt/ħ)
-and the drift D = exp(-iħk²Δt/2m). A scheme is a list of drift weights
+and the drift D = exp(-iħ|k|²Δt/2m). A scheme is a list of drift weights
 (strang: [1]; yoshida4: the triple jump [w₁, w₀, w₁]); consecutive kicks are
 fused, so between recordings a step costs its FFTs and one multiply per FFT
-pair. The state is only split back into a true ψ(t) where a recording is made.
+pair. The state is only split back into a true ψ(t) where `advance` returns.
 
-Sampling between recordings (detector flux, region probability) is done on the
-state after a drift and before the next kick: the kick is a pure phase outside
-the absorber, so |ψ|² and the local current are unaffected by it.
+Sampling between recordings is done on the state after a drift and before the
+closing kick (`Propagator.closing_kick` turns it into ψ(t)): outside the
+absorber that kick is a pure phase, so |ψ|² is unaffected, but its gradient
+is not — the sampler applies it on the detectors' stencil nodes.
+
+Nothing here assumes one axis: the kinetic factor is built from the grid's
+|k|² (`grid.k_squared`) on the grid's shape and the FFTs run over all its axes.
 """
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Callable, Optional
 
 import numpy as np
 
 from .fft import FFTPair
 
+
+@dataclass(frozen=True)
+class Scheme:
+    """A splitting scheme: a symmetric composition of Strang steps.
+
+    An entry of `SCHEMES` must provide (checked when the module is imported):
+
+    1. ``drifts``: the drift weights w_1..w_s (finite, at least one); one step
+       is Π_j K(w_j/2) D(w_j) K(w_j/2), each kick and drift over w_j·Δt.
+    2. Σ w_j = 1, so that one step advances the time by Δt.
+    3. The weights read the same both ways (symmetric, hence time-reversible):
+       the fused kick between two steps is then K((w_s + w_1)/2) and the order
+       is even.
+    4. ``order``: the global order p of the error in Δt (error ∝ Δt^p), as
+       tests/physics/test_propagation.py observes it; Richardson error bars read it.
+
+    Sources: Strang splitting (Feit, Fleck & Steiger, J. Comput. Phys. 47, 412
+    (1982)); the triple jump (H. Yoshida, Phys. Lett. A 150, 262 (1990)).
+    """
+
+    drifts: tuple[float, ...]
+    order: int
+
+
+def _check_scheme(name: str, scheme: Scheme) -> Scheme:
+    w = scheme.drifts
+    if not w or not all(math.isfinite(c) for c in w):
+        raise ValueError(f"scheme {name!r}: drift weights must be finite and at least one")
+    if abs(sum(w) - 1) > 1e-12:
+        raise ValueError(f"scheme {name!r}: drift weights sum to {sum(w)!r}, not 1")
+    if any(abs(a - b) > 1e-15 for a, b in zip(w, reversed(w))):
+        raise ValueError(f"scheme {name!r}: drift weights must read the same both ways")
+    if scheme.order < 2 or scheme.order % 2:
+        raise ValueError(f"scheme {name!r}: the order of a symmetric scheme is even and ≥ 2")
+    return scheme
+
+
 _CBRT2 = 2 ** (1 / 3)
-SCHEMES = {
-    "strang": (1.0,),
-    "yoshida4": (1 / (2 - _CBRT2), -_CBRT2 / (2 - _CBRT2), 1 / (2 - _CBRT2)),
-}
-ORDER = {"strang": 2, "yoshida4": 4}
+# the registry of schemes by name; each entry follows the rules in `Scheme`
+SCHEMES: dict[str, Scheme] = {
+    name: _check_scheme(name, s) for name, s in {
+        "strang": Scheme((1.0,), 2),
+        "yoshida4": Scheme((1 / (2 - _CBRT2), -_CBRT2 / (2 - _CBRT2), 1 / (2 - _CBRT2)), 4),
+    }.items()}
+ORDER = {name: s.order for name, s in SCHEMES.items()}  # name -> order, for readers of the order only
+
+# between two checks of a stop request, about this many point-steps (0.01-0.1 s here)
+CHECK_POINT_STEPS = 1 << 21
+
+
+def _known(name: str) -> Scheme:
+    if name not in SCHEMES:
+        raise ValueError(f"unknown scheme {name!r}; known schemes: {', '.join(SCHEMES)}")
+    return SCHEMES[name]
+
+
+def _positive(name: str, value) -> float:
+    value = float(value)
+    if not (math.isfinite(value) and value > 0):
+        raise ValueError(f"{name} must be finite and > 0 (got {value!r})")
+    return value
+
+
+def _on_grid(name: str, values, shape) -> np.ndarray:
+    values = np.asarray(values, dtype=float)
+    if values.shape != tuple(shape):
+        raise ValueError(f"{name} has shape {values.shape}; the grid's is {tuple(shape)}")
+    if not np.all(np.isfinite(values)):
+        raise ValueError(f"{name} is not finite everywhere on the grid")
+    return values
 
 
 class Propagator:
@@ -32,35 +101,45 @@ class Propagator:
 
     Parameters
     ----------
-    grid : Grid
-    V : real potential on the grid
+    grid : Grid (anything with ``shape``, ``k_squared``)
+    V : real potential on the grid's shape
     hbar, mass : in the scenario's units
-    dt : time step
-    scheme : 'strang' or 'yoshida4'
-    absorber : W(x) ≥ 0 on the grid, or None
+    dt : time step (> 0)
+    scheme : a name in SCHEMES
+    absorber : W(x) ≥ 0 on the grid's shape, or None
     single : compute in complex64 instead of complex128
+
+    State: ``step`` (steps taken since t = 0), ``time`` (= step·dt), ``status``:
+    'empty' (no state yet), 'ready' (``psi`` is the true ψ(time)), 'stopped'
+    (``advance`` returned early on a stop request; ``psi`` is the true ψ(time)),
+    'interrupted' or 'failed' (an exception escaped ``advance``; ``psi`` is
+    not a true state).
     """
 
     def __init__(self, grid, V, hbar: float, mass: float, dt: float, scheme: str = "strang",
                  absorber: Optional[np.ndarray] = None, single: bool = False,
                  threads: Optional[int] = None):
-        self.grid, self.dt, self.scheme = grid, dt, scheme
-        self.hbar, self.mass = hbar, mass
+        weights = _known(scheme).drifts
+        self.hbar, self.mass = _positive("hbar", hbar), _positive("mass", mass)
+        self.dt = _positive("dt", dt)
+        shape = tuple(grid.shape)
+        potential = _on_grid("V", V, shape)
+        W = None if absorber is None else _on_grid("the absorber W", absorber, shape)
+        if W is not None and np.any(W < 0):
+            raise ValueError("the absorber W must be ≥ 0 (it removes probability)")
+        self.grid, self.scheme, self.absorber = grid, scheme, W
         dtype = np.complex64 if single else np.complex128
-        self.fft = FFTPair(grid.points, dtype=dtype, threads=threads)
+        self.fft = FFTPair(shape, dtype=dtype, threads=threads)
         self.buffer = self.fft.buffer
-        weights = SCHEMES[scheme]
-        n = grid.points
-        W = np.zeros(n) if absorber is None else np.asarray(absorber, dtype=float)
-        self.absorber = None if absorber is None else W
-        potential = np.asarray(V, dtype=float) - 1j * W
+        self.step, self.status = 0, "empty"
+        points = math.prod(shape)
+        U = potential if W is None else potential - 1j * W
 
         def kick(c):
-            return np.exp(-1j * potential * (c * dt / hbar)).astype(dtype)
+            return np.exp(-1j * U * (c * dt / hbar)).astype(dtype)
 
         def drift(c):
-            phase = np.exp(-1j * hbar * grid.k ** 2 * (c * dt) / (2 * mass)) / n
-            return phase.astype(dtype)
+            return (np.exp(-1j * hbar * grid.k_squared * (c * dt) / (2 * mass)) / points).astype(dtype)
 
         self._first = kick(weights[0] / 2)          # opens a stretch of steps
         self._last = kick(weights[-1] / 2)          # closes it
@@ -68,39 +147,85 @@ class Propagator:
         self._inner = [kick((a + b) / 2) for a, b in zip(weights[:-1], weights[1:])]
         distinct = {c: drift(c) for c in set(weights)}
         self._drifts = [distinct[c] for c in weights]
+        self.check_every = max(1, CHECK_POINT_STEPS // points)
 
     @property
     def psi(self) -> np.ndarray:
-        """The state buffer (a true ψ(t) between calls to advance)."""
+        """The state buffer (a true ψ(time) between calls to advance)."""
         return self.buffer
 
-    def set_state(self, psi: np.ndarray) -> None:
-        self.buffer[:] = psi
+    @property
+    def time(self) -> float:
+        return self.step * self.dt
+
+    @property
+    def closing_kick(self) -> np.ndarray:
+        """The factor that turns a sampled buffer (see `advance`) into ψ(t)."""
+        return self._last
+
+    def set_state(self, psi: np.ndarray, step: int = 0) -> None:
+        """Start from ψ at step `step` (t = step·dt)."""
+        psi = np.asarray(psi)
+        if psi.shape != self.buffer.shape:
+            raise ValueError(f"ψ has shape {psi.shape}; the grid's is {self.buffer.shape}")
+        if int(step) != step or step < 0:
+            raise ValueError(f"the step must be a whole number ≥ 0 (got {step!r})")
+        self.buffer[...] = psi
+        self.step, self.status = int(step), "ready"
 
     def advance(self, steps: int, sample_every: int = 0,
-                sampler: Optional[Callable[[np.ndarray, int], None]] = None) -> None:
-        """Advance by `steps` steps. If given, sampler(buffer, k) is called after
-        step k (1-based) for every k divisible by sample_every, before the kick
-        that follows (see the module note).
+                sampler: Optional[Callable[[np.ndarray, int], None]] = None,
+                stop: Optional[Callable[[], bool]] = None) -> int:
+        """Advance by `steps` steps; returns the number taken (fewer only on a stop).
 
-        The steps between two samples run as one stretch of fused kicks, so the
-        Python work per step is the FFT calls and the in-place multiplies."""
-        if steps <= 0:
-            return
+        If given, sampler(buffer, step) is called after every step whose number
+        (counted from t = 0) is divisible by `sample_every`, on the buffer after
+        that step's last drift, before the closing kick (see the module note).
+        If given, stop() is asked about every `check_every` steps (a bounded
+        wall time: ~CHECK_POINT_STEPS point-steps); when it says True, the state
+        is closed into a true ψ(time) there and status becomes 'stopped'.
+
+        The steps between two samples or checks run as one stretch of fused
+        kicks, so the Python work per step is the FFT calls and the multiplies."""
+        if self.status not in ("ready", "stopped"):
+            raise ValueError(f"the propagator holds no true state (status {self.status!r}); "
+                             "call set_state first")
+        if int(steps) != steps or steps < 0:
+            raise ValueError(f"steps must be a whole number ≥ 0 (got {steps!r})")
+        steps = int(steps)
+        self.status = "ready"
+        if steps == 0:
+            return 0
         if sampler is None or sample_every <= 0:
-            sampler, sample_every = None, steps + 1
-        buf, between = self.buffer, self._between
-        np.multiply(buf, self._first, out=buf)
+            sampler, every = None, steps + 1 + self.step
+        else:
+            every = int(sample_every)
+        check = self.check_every if stop is not None else steps + 1
+        buf, between, start = self.buffer, self._between, self.step
         done = 0
-        while done < steps:
-            stretch = min(sample_every - done % sample_every, steps - done)
-            self._stretch(stretch)
-            done += stretch
-            if sampler is not None and done % sample_every == 0:
-                sampler(buf, done)
-            if done < steps:
-                np.multiply(buf, between, out=buf)
-        np.multiply(buf, self._last, out=buf)
+        try:
+            np.multiply(buf, self._first, out=buf)
+            while done < steps:
+                now = start + done
+                stretch = min(every - now % every, check - done % check, steps - done)
+                self._stretch(stretch)
+                done += stretch
+                if sampler is not None and (start + done) % every == 0:
+                    sampler(buf, start + done)
+                if done < steps:
+                    if stop is not None and done % check == 0 and stop():
+                        self.status = "stopped"
+                        break
+                    np.multiply(buf, between, out=buf)
+            np.multiply(buf, self._last, out=buf)
+        except KeyboardInterrupt:
+            self.status = "interrupted"
+            raise
+        except BaseException:
+            self.status = "failed"
+            raise
+        self.step = start + done
+        return done
 
     def _stretch(self, count: int) -> None:
         """`count` steps that start after an opening kick and end after the last

@@ -2,6 +2,8 @@
 probability, norm and absorption (sampled), and the moments (recorded)."""
 from __future__ import annotations
 
+from typing import Optional
+
 import numpy as np
 
 from . import observables as obs
@@ -10,13 +12,22 @@ from .fft import FFTPair
 
 class Sampler:
     """Collects detector flux, region probability, norm and absorption between
-    recordings; called by the propagator every `sample_steps` steps."""
+    recordings; called by the propagator every `sample_steps` steps.
 
-    def __init__(self, setup: Setup, raw_absorbed=(0.0, 0.0)):
+    `closing` is the propagator's closing kick (`Propagator.closing_kick`): the
+    buffer it samples is that factor short of ψ(t). |ψ|² outside the absorber
+    does not see it, but the current does — on a slope, by −(cΔt/m)V′|ψ|²
+    (c the closing kick's weight) — so the flux is taken on closing·ψ at the
+    detectors' stencil nodes (folded into their weights: no extra work)."""
+
+    def __init__(self, setup: Setup, raw_absorbed=(0.0, 0.0),
+                 closing: Optional[np.ndarray] = None):
         g = setup.grid
         self.dt, self.every = setup.dt, setup.sample_steps
         self.dx = g.dx
         self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
+        self._buffer_detectors = self.detectors if closing is None \
+            else self.detectors.with_factor(closing)
         self.region = obs.window(g, *setup.region) if setup.region else None
         self.left = obs.window(g, g.left - g.dx, setup.reference)
         self.right = obs.window(g, setup.reference, g.right + g.dx)
@@ -30,8 +41,7 @@ class Sampler:
                     sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
                 self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
         self.raw_absorbed = list(raw_absorbed)
-        self.start_step = 0
-        self._spectrum = FFTPair(g.points)  # a planned transform for ⟨p⟩ and ⟨H⟩
+        self._spectrum = FFTPair(g.shape)  # a planned transform for ⟨p⟩ and ⟨H⟩
         self.reset()
 
     def _transform(self, psi: np.ndarray) -> np.ndarray:
@@ -43,9 +53,11 @@ class Sampler:
         self.t, self.flux, self.p_region, self.norm = [], [], [], []
         self.absorbed = ([], [])
 
-    def take(self, psi: np.ndarray, t: float) -> None:
+    def take(self, psi: np.ndarray, t: float, buffer: bool = False) -> None:
+        """Sample ψ(t) (or, with `buffer`, the propagator's buffer: `closing` short of it)."""
         self.t.append(t)
-        self.flux.append(self.detectors.flux(psi) if len(self.detectors) else [0.0])
+        detectors = self._buffer_detectors if buffer else self.detectors
+        self.flux.append(detectors.flux(psi) if len(detectors) else [0.0])
         self.p_region.append(obs.probability(psi, self.dx, self.region))
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
@@ -64,8 +76,9 @@ class Sampler:
         lost = max(1.0 - norm, 0.0)
         return lost * self.raw_absorbed[0] / raw, lost * self.raw_absorbed[1] / raw
 
-    def __call__(self, psi: np.ndarray, step: int) -> None:
-        self.take(psi, (self.start_step + step) * self.dt)
+    def __call__(self, buffer: np.ndarray, step: int) -> None:
+        """The propagator's callback: the buffer after step `step` (counted from t = 0)."""
+        self.take(buffer, step * self.dt, buffer=True)
 
     def batch(self) -> dict:
         out = {"t": np.array(self.t), "flux": np.array(self.flux, dtype=float).reshape(len(self.t), max(len(self.detectors), 1)),

@@ -10,7 +10,8 @@ def absorber_profile(x: np.ndarray, left: float, right: float, width: float,
                      strength: float) -> np.ndarray:
     """Complex absorbing potential W(x) ≥ 0: a quadratic ramp from 0 to
     `strength` across a layer of `width` at each end of [left, right)
-    (smooth ramp as in Riss & Meyer, J. Chem. Phys. 105, 1409 (1996))."""
+    (smooth ramp as in Riss & Meyer, J. Chem. Phys. 105, 1409 (1996)).
+    Elementwise: `x` may have any shape (the coordinate of one axis, broadcast)."""
     depth_left = np.clip((left + width - x) / width, 0.0, None)
     depth_right = np.clip((x - (right - width)) / width, 0.0, None)
     return strength * (depth_left ** 2 + depth_right ** 2)

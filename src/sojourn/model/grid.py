@@ -1,4 +1,8 @@
-"""The periodic spatial grid and its momentum grid."""
+"""The periodic spatial grid and its momentum grid.
+
+Code that only needs the grid's shape, its cell volume and |k|² (the propagator,
+the FFT plans, the observables' reductions) reads `shape`, `dx` and `k_squared`,
+so that a grid of more axes can stand in without changing it."""
 from __future__ import annotations
 
 import math
@@ -25,6 +29,11 @@ class Grid:
         return self.right - self.left
 
     @property
+    def shape(self) -> tuple[int, ...]:
+        """Shape of an array on the grid (one axis today)."""
+        return (self.points,)
+
+    @property
     def dx(self) -> float:
         return self.length / self.points
 
@@ -36,6 +45,11 @@ class Grid:
     def k(self) -> np.ndarray:
         """Wavenumbers in FFT order."""
         return 2 * math.pi * np.fft.fftfreq(self.points, d=self.dx)
+
+    @cached_property
+    def k_squared(self) -> np.ndarray:
+        """|k|² on the grid's shape, in FFT order (the kinetic energy is ħ²|k|²/2m)."""
+        return self.k ** 2
 
     @property
     def k_max(self) -> float:
