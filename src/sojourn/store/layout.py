@@ -7,12 +7,14 @@ every reader checks on open (README.md describes it for people).
     /snapshots/t, step, psi     (S,), (S,), (S, N) complex — S rows allocated at the start;
                        attrs "committed": how many rows hold committed snapshots
     /observables/NAME  (S,) float for NAME in ("t",) + OBSERVABLES; attrs region, reference
-    /observables/samples/t, NAME, flux   (M,), (M,), (M, D): the samples between snapshots;
-                       attrs detectors (D or 0 positions)
+    /observables/samples/t, NAME, flux   (M,), (M,), (M, D): the samples between snapshots
+                       (M rows allocated at the start); attrs detectors (D or 0 positions)
     /checkpoint/a, /checkpoint/b   two slots, each psi (N,) complex and attrs
                        step, t, snapshots, samples, absorbed_left, absorbed_right
 
-A commit writes the new rows and the spare checkpoint slot, flushes, then
+Every dataset is allocated at its final size when the run starts (its fill
+written), so a disk too small is found then and the file barely grows during
+the run (compressed ψ aside). A commit writes the new rows and the spare checkpoint slot, flushes, then
 writes /snapshots attrs "committed" LAST and flushes again. The committed state
 is the slot whose "snapshots" equals that counter; its "samples" says how many
 samples are committed. Rows past the counters are never read.
@@ -106,14 +108,27 @@ def _early() -> h5py.h5p.PropDCID:
     return dcpl
 
 
-def _rows(group, name, rows, tail=(), dtype="f8", growing=False, **filters):
-    """A dataset of `rows` rows (allocated now), extendible along its first axis,
+def _rows(group, name, rows, tail=(), dtype="f8"):
+    """A dataset of `rows` rows, allocated now, extendible along its first axis,
     checksummed (fletcher32) so that damaged data is refused on read."""
-    chunk = max(1, 4096 // max(1, int(np.prod(tail))))
-    return group.create_dataset(
-        name, shape=(rows, *tail), maxshape=(None, *tail),
-        chunks=(max(1, min(chunk, rows)) if not growing else chunk, *tail), dtype=dtype,
-        fletcher32=True, **({} if growing else {"dcpl": _early()}), **filters)
+    chunk = max(1, min(rows, 4096 // max(1, int(np.prod(tail)))))
+    return group.create_dataset(name, shape=(rows, *tail), maxshape=(None, *tail),
+                                chunks=(chunk, *tail), dtype=dtype, fletcher32=True,
+                                dcpl=_early())
+
+
+def sample_rows(setup) -> int:
+    """The samples a run takes: t = 0 and every `sample_steps` steps."""
+    return setup.steps // setup.sample_steps + 1
+
+
+def allocated_bytes(setup, compress: bool) -> int:
+    """The bytes `create` allocates (ψ rows not counted when compressed: they
+    are allocated as they are written)."""
+    n, rows, item = setup.grid.points, setup.snapshots, np.dtype(psi_dtype(setup)).itemsize
+    columns = len(SAMPLES) + 1 + max(len(setup.detectors), 1)
+    return ((0 if compress else rows * n * item) + rows * (len(OBSERVABLES) + 3) * 8
+            + sample_rows(setup) * columns * 8 + 3 * n * 8 + 2 * n * item)
 
 
 def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
@@ -152,10 +167,11 @@ def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
     obs.attrs["region"] = np.array(setup.region if setup.region else (np.nan, np.nan), float)
     obs.attrs["reference"] = float(setup.reference)
     samples = obs.create_group("samples")
-    _rows(samples, "t", 0, growing=True).attrs["units"] = u.time
+    m = sample_rows(setup)
+    _rows(samples, "t", m).attrs["units"] = u.time
     for name in SAMPLES:
-        _rows(samples, name, 0, growing=True)
-    _rows(samples, "flux", 0, (max(len(setup.detectors), 1),), growing=True)
+        _rows(samples, name, m)
+    _rows(samples, "flux", m, (max(len(setup.detectors), 1),))
     samples.attrs["detectors"] = np.array(setup.detectors, dtype=float)
     ck = f.create_group("checkpoint")
     for slot in SLOTS:

@@ -11,10 +11,13 @@ whose committed part is consistent and resumable.
 """
 from __future__ import annotations
 
+import atexit
 import datetime as _dt
 import os
+import resource
 import signal
 import stat
+import sys
 import time
 from pathlib import Path
 from typing import Optional
@@ -32,6 +35,7 @@ from .repair import clear_write_flags
 COMMIT_SECONDS = 2.0  # the most run time a crash can lose
 PSI_BLOCK = 16        # rows a dataset grows by if a run records more than planned
 WRITE_ERRORS = (OSError, RuntimeError)   # h5py raises either for a failed write
+HEADROOM = 64 * 1024  # bytes kept free for a last commit and the closing metadata
 
 
 def ignore_file_size_signal() -> None:
@@ -41,6 +45,49 @@ def ignore_file_size_signal() -> None:
         signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
     except (ValueError, AttributeError, OSError):   # not the main thread / no such signal
         pass
+
+
+_UNCLOSABLE: list = []   # files HDF5 failed to close after a write error
+
+
+def _end_without_library_teardown() -> None:
+    """HDF5 retries closing a file it could not close when the process ends,
+    and crashes there (a segmentation fault in its teardown); a process that
+    holds such a file therefore ends here, with exit code 2 (a run file error)."""
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):
+            pass
+    os._exit(2)
+
+
+def close_file(handle: h5py.File, owner=None) -> None:
+    """Close an HDF5 file; one that cannot be closed (its last writes fail) is
+    kept referenced with its `owner` (who holds its datasets), so that it is
+    never half-freed, and the process ends without the library's teardown."""
+    try:
+        handle.close()
+    except WRITE_ERRORS:
+        _UNCLOSABLE.append((handle, owner))
+        if len(_UNCLOSABLE) == 1:
+            atexit.register(_end_without_library_teardown)
+        raise
+
+
+def _room_for(folder: Path, need: int, size: int = 0) -> Optional[str]:
+    """Why `need` more bytes do not fit in a file of `size` bytes in `folder`
+    (the file size limit, the free disk space), or None."""
+    limit = resource.getrlimit(resource.RLIMIT_FSIZE)[0]
+    if limit != resource.RLIM_INFINITY and size + need > limit:
+        return f"the file size limit ({limit / 2**20:.2f} MiB, ulimit -f) is reached"
+    try:
+        disk = os.statvfs(folder)
+    except OSError:
+        return None
+    if disk.f_bavail * disk.f_frsize < need:
+        return f"the disk is full ({disk.f_bavail * disk.f_frsize / 2**20:.1f} MiB free)"
+    return None
 
 
 def _never_overwritten(final: Path) -> RunFileError:
@@ -118,6 +165,9 @@ class RunWriter:
         self._slot = committed.slot or SLOTS[1]   # the slot holding the committed state
         self._rows = committed.snapshots          # committed snapshot rows
         self._samples = committed.samples
+        psi = self._snap["psi"]
+        # compressed rows claim their space as they are written; others have it already
+        self._growth = psi.dtype.itemsize * psi.shape[1] + 4096 if psi.compression else 0
         self._pending: list = []   # (step, t, observables, samples, raw absorbed)
         self._last_psi = None
         self._committed_at = time.monotonic()
@@ -149,19 +199,22 @@ class RunWriter:
                     raise RunFileError(f"{partial} is not a sojourn run file, so it is not "
                                        "replaced; move it away, or choose another output with -o")
                 partial.unlink()
+            size = layout.allocated_bytes(setup, compress)
+            short = _room_for(final.parent, size + HEADROOM)
+            if short:
+                raise RunFileError(f"cannot allocate {partial} ({size / 2**20:.1f} MiB): {short}")
             handle = _create_exclusively(partial)
             try:
                 layout.create(handle, setup, backend, compress)
                 handle.swmr_mode = True
-            except WRITE_ERRORS as exc:
-                handle.close()
+            except Exception as exc:     # h5py reports a failed write as any of several
+                try:
+                    close_file(handle)
+                except WRITE_ERRORS:
+                    pass
                 partial.unlink()
-                size = setup.snapshots * setup.grid.points * np.dtype(layout.psi_dtype(setup)).itemsize
-                raise RunFileError(f"cannot allocate {partial} ({size / 2**20:.0f} MiB of "
-                                   f"snapshots): {one_line(exc, 120)}") from None
-            except BaseException:
-                handle.close()
-                raise
+                raise RunFileError(f"cannot allocate {partial} ({size / 2**20:.1f} MiB): "
+                                   f"{one_line(exc, 120)}") from None
         except BaseException:
             lock.release()
             raise
@@ -204,8 +257,6 @@ class RunWriter:
             if committed.snapshots == 0:
                 raise RunFileError(f"{partial} holds no checkpoint yet; start again with --overwrite")
             state = _consistent_state(handle, committed, partial)
-            for name in ("t", "flux") + SAMPLES:   # drop samples written after the commit
-                handle["observables/samples"][name].resize(committed.samples, axis=0)
             handle.attrs["status"] = "running"
             handle.swmr_mode = True
         except WRITE_ERRORS as exc:
@@ -224,6 +275,9 @@ class RunWriter:
         """Write a snapshot's ψ row; its other values and the checkpoint follow at
         the next commit (at most COMMIT_SECONDS later)."""
         row = self._rows + len(self._pending)
+        short = self._short_of_room()
+        if short:
+            self._fail(RunFileError(short), stopped=True)
         try:
             self._ensure_rows(row + 1)
             self._snap["psi"][row] = psi
@@ -256,11 +310,13 @@ class RunWriter:
                 self._obs[name][start:stop] = [item[2][name] for item in pending]
             batches = [item[3] for item in pending if len(item[3]["t"])]
             samples = self._samples + sum(len(b["t"]) for b in batches)
+            if batches and samples > self._smp["t"].shape[0]:   # more than planned
+                for dataset in self._smp.values():
+                    dataset.resize(samples + 64 * PSI_BLOCK, axis=0)
             for name in ("t", "flux") + SAMPLES:
                 if batches:
-                    dataset = self._smp[name]
-                    dataset.resize(samples, axis=0)
-                    dataset[self._samples:samples] = np.concatenate([b[name] for b in batches])
+                    self._smp[name][self._samples:samples] = np.concatenate(
+                        [b[name] for b in batches])
             step, t, _, _, raw = pending[-1]
             spare = SLOTS[1 - SLOTS.index(self._slot)]
             slot = self._slots[spare]
@@ -278,19 +334,31 @@ class RunWriter:
         self._pending.clear()
         self._committed_at = time.monotonic()
 
-    def _fail(self, exc: BaseException):
-        """A write failed (disk full, file too large, ...): keep what was
-        committed, mark the file failed if that can still be written, close it,
-        and say so in one line."""
+    def _short_of_room(self) -> Optional[str]:
+        """Why the next snapshot may not fit (a nearly full disk, a file size
+        limit), checked before HDF5 runs into it: a write that fails inside
+        HDF5 can leave the file's end unwritten and the file unreadable."""
+        try:
+            size = os.stat(self.partial).st_size
+        except OSError:
+            return None
+        return _room_for(self.partial.parent, HEADROOM + self._growth * (len(self._pending) + 2),
+                         size)
+
+    def _fail(self, exc: BaseException, stopped: bool = False):
+        """A write failed or would fail (disk full, file too large, ...): keep
+        what was committed, mark the file failed if that can still be written,
+        close it, and say so in one line."""
         if not self._failing:
             self._failing = True
             try:
                 self.close("failed")
             except (*WRITE_ERRORS, RunFileError):
                 pass
-        raise RunFileError(f"writing {self.partial} failed ({one_line(exc, 160)}); what was "
-                           "committed before is kept (resume it with --resume once there is room)") \
-            from None
+        what = "stopped writing" if stopped else "writing"
+        raise RunFileError(f"{what} {self.partial} ({'' if stopped else 'failed: '}"
+                           f"{one_line(exc, 160)}); what was committed before is kept (resume it "
+                           "with --resume once there is room)") from None
 
     def close(self, status: str) -> None:
         """Commit what is pending and close with a status (interrupted, failed);
@@ -304,7 +372,7 @@ class RunWriter:
                         self.h5.attrs["status"] = status
                         self.h5.flush()
                     finally:
-                        self.h5.close()
+                        close_file(self.h5, self)
         finally:
             if self.lock is not None:
                 self.lock.release()
@@ -314,13 +382,14 @@ class RunWriter:
         """Mark complete, close, and rename NAME.h5.partial → NAME.h5."""
         self.commit()
         try:
-            rows = self._rows
-            if self._snap["t"].shape[0] != rows:    # fewer or more recordings than planned
-                for dataset in (*self._snap.values(), *self._obs.values()):
-                    dataset.resize(rows, axis=0)
+            for datasets, rows in (((*self._snap.values(), *self._obs.values()), self._rows),
+                                   (self._smp.values(), self._samples)):
+                for dataset in datasets:    # fewer recordings or samples than planned
+                    if dataset.shape[0] != rows:
+                        dataset.resize(rows, axis=0)
             self.h5.attrs["status"] = "complete"
             self.h5.attrs["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat()
-            self.h5.close()
+            close_file(self.h5, self)
             os.replace(self.partial, self.final)
         except WRITE_ERRORS as exc:
             self._fail(exc)
