@@ -1,5 +1,6 @@
-"""The run file: its layout, writer, readers (on disk and in memory), analysis
-saving, locks, paths and repair."""
+"""The run file: layout (the written schema), writer, readers (RunFile on disk,
+MemoryRun in memory; the contract in reader.py), analysis saving, safe file
+creation (files), locks, paths and repair."""
 from .analysis import save_analysis
 from .layout import FORMAT, FORMAT_VERSION
 from .locks import WriteLock, folder_lock

@@ -222,10 +222,22 @@ def _attr(node, key, kind, path, where):
     return number
 
 
-def validate(f: h5py.File, path) -> Committed:
+def _datasets(version: int) -> dict:
+    """The required datasets of a format version. Version 1 (read only) grew its
+    rows as it went: ψ may hold a few rows past the others, and its checkpoint
+    was one state, not two slots."""
+    if version >= 2:
+        return DATASETS
+    out = {k: v for k, v in DATASETS.items() if not k.startswith("checkpoint/")}
+    out["snapshots/psi"] = ("c", ("P", "N"))
+    return out
+
+
+def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
     """Check the file against the layout above; raise RunFileError naming the
     first thing missing or wrong. Returns what is committed."""
-    attrs = {key: _attr(f, key, kind, path, "/") for key, kind in ROOT_ATTRS.items()}
+    attrs = {key: _attr(f, key, kind, path, "/") for key, kind in ROOT_ATTRS.items()
+             if version >= 2 or key != "finished"}
     for key in ("dt", "hbar", "mass"):
         if attrs[key] <= 0:
             _fail(path, f"attribute /{key} is not positive")
@@ -240,7 +252,8 @@ def validate(f: h5py.File, path) -> Committed:
         if not isinstance(packet.get(key), (int, float)) or not np.isfinite(packet[key]):
             _fail(path, f"attribute /packet has no finite '{key}'")
     sizes: dict = {}
-    for name, (kind, shape) in {**DATASETS, **{k: v for k, v in OPTIONAL.items() if k in f}}.items():
+    for name, (kind, shape) in {**_datasets(version),
+                                **{k: v for k, v in OPTIONAL.items() if k in f}}.items():
         node = f.get(name)
         if not isinstance(node, h5py.Dataset):
             _fail(path, f"dataset /{name} is missing")
@@ -265,6 +278,10 @@ def validate(f: h5py.File, path) -> Committed:
     if len(detectors) not in (0, sizes["D"]) or (len(detectors) == 0 and sizes["D"] != 1):
         _fail(path, "attribute /observables/samples/detectors does not match the flux columns")
     del region
+    if version < 2:   # committed: what has its observables; a crash could leave extra ψ rows
+        if sizes["P"] < sizes["S"]:
+            _fail(path, "fewer ψ rows than snapshot times")
+        return Committed(sizes["S"], sizes["M"], "", sizes["N"])
     committed = _attr(f["snapshots"], "committed", "int", path, "/snapshots/")
     if not 0 <= committed <= sizes["S"]:
         _fail(path, f"/snapshots commit counter {committed} outside 0..{sizes['S']}")

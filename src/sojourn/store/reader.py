@@ -177,11 +177,9 @@ class RunFile(RunReader):
                 raise RunFileError(f"{self.path}: run file format version {version} is newer "
                                    f"than this sojourn understands ({layout.FORMAT_VERSION}); "
                                    "upgrade sojourn")
-            if version < layout.FORMAT_VERSION:
-                raise RunFileError(f"{self.path}: run file format version {version} was written "
-                                   "by an older sojourn; this one reads version "
-                                   f"{layout.FORMAT_VERSION} (rerun the scenario)")
-            self.committed = layout.validate(self.h5, self.path)
+            if version < 1:
+                raise RunFileError(f"{self.path}: damaged run file (format version {version})")
+            self.committed = layout.validate(self.h5, self.path, version)
         except (OSError, RuntimeError, KeyError, TypeError, ValueError) as exc:
             self.h5.close()
             raise RunFileError(f"{self.path}: damaged run file ({one_line(exc, 120)})") from None

@@ -11,13 +11,8 @@ whose committed part is consistent and resumable.
 """
 from __future__ import annotations
 
-import atexit
 import datetime as _dt
 import os
-import resource
-import signal
-import stat
-import sys
 import time
 from pathlib import Path
 from typing import Optional
@@ -28,120 +23,19 @@ import numpy as np
 from ..errors import RunFileError, one_line
 from . import layout
 from .layout import OBSERVABLES, SAMPLES, SLOTS
+from .files import (HEADROOM, WRITE_ERRORS, close_file, create_exclusively, ignore_file_size_signal,
+                    is_run_file, regular_or_absent, room_for)
 from .locks import WriteLock
 from .paths import partial_path
 from .repair import clear_write_flags
 
 COMMIT_SECONDS = 2.0  # the most run time a crash can lose
 PSI_BLOCK = 16        # rows a dataset grows by if a run records more than planned
-WRITE_ERRORS = (OSError, RuntimeError)   # h5py raises either for a failed write
-HEADROOM = 64 * 1024  # bytes kept free for a last commit and the closing metadata
-
-
-def ignore_file_size_signal() -> None:
-    """Past a file-size limit (ulimit -f) the kernel kills a writer with SIGXFSZ;
-    ignored, the write fails with EFBIG and the run stops with a message."""
-    try:
-        signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
-    except (ValueError, AttributeError, OSError):   # not the main thread / no such signal
-        pass
-
-
-_UNCLOSABLE: list = []   # files HDF5 failed to close after a write error
-
-
-def _end_without_library_teardown() -> None:
-    """HDF5 retries closing a file it could not close when the process ends,
-    and crashes there (a segmentation fault in its teardown); a process that
-    holds such a file therefore ends here, with exit code 2 (a run file error)."""
-    for stream in (sys.stdout, sys.stderr):
-        try:
-            stream.flush()
-        except (OSError, ValueError):
-            pass
-    os._exit(2)
-
-
-def close_file(handle: h5py.File, owner=None) -> None:
-    """Close an HDF5 file; one that cannot be closed (its last writes fail) is
-    kept referenced with its `owner` (who holds its datasets), so that it is
-    never half-freed, and the process ends without the library's teardown."""
-    try:
-        handle.close()
-    except WRITE_ERRORS:
-        _UNCLOSABLE.append((handle, owner))
-        if len(_UNCLOSABLE) == 1:
-            atexit.register(_end_without_library_teardown)
-        raise
-
-
-def _room_for(folder: Path, need: int, size: int = 0) -> Optional[str]:
-    """Why `need` more bytes do not fit in a file of `size` bytes in `folder`
-    (the file size limit, the free disk space), or None."""
-    limit = resource.getrlimit(resource.RLIMIT_FSIZE)[0]
-    if limit != resource.RLIM_INFINITY and size + need > limit:
-        return f"the file size limit ({limit / 2**20:.2f} MiB, ulimit -f) is reached"
-    try:
-        disk = os.statvfs(folder)
-    except OSError:
-        return None
-    if disk.f_bavail * disk.f_frsize < need:
-        return f"the disk is full ({disk.f_bavail * disk.f_frsize / 2**20:.1f} MiB free)"
-    return None
 
 
 def _never_overwritten(final: Path) -> RunFileError:
     return RunFileError(f"{final} exists; a result is never overwritten "
                         "(use --overwrite to replace it, or -o for another name)")
-
-
-def _regular_or_absent(path: Path) -> Optional[os.stat_result]:
-    """lstat of `path` (None if absent); refuses a symlink or a non-regular file."""
-    try:
-        info = os.lstat(path)
-    except FileNotFoundError:
-        return None
-    except OSError as exc:
-        raise RunFileError(f"cannot look at {path}: {one_line(exc, 120)}") from None
-    if stat.S_ISLNK(info.st_mode):
-        raise RunFileError(f"{path} is a symbolic link; a run never writes through one "
-                           "(remove it, or choose another output with -o)")
-    if not stat.S_ISREG(info.st_mode):
-        raise RunFileError(f"{path} is not a regular file; remove it, or choose another "
-                           "output with -o")
-    return info
-
-
-def _is_run_file(path: Path) -> bool:
-    for mode in ({}, {"swmr": True}):
-        try:
-            with h5py.File(path, "r", **mode) as f:
-                return f.attrs.get("format") == layout.FORMAT
-        except (OSError, RuntimeError):
-            continue
-    return False
-
-
-def _create_exclusively(partial: Path) -> h5py.File:
-    """A new HDF5 file at `partial`, which must not exist (O_EXCL, no symlink followed)."""
-    try:
-        fd = os.open(partial, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_NOFOLLOW, 0o644)
-    except FileExistsError:
-        raise RunFileError(f"{partial} appeared while the run was starting; "
-                           "is another program writing there?") from None
-    except OSError as exc:
-        raise RunFileError(f"cannot create {partial}: {one_line(exc.strerror or exc, 160)}") \
-            from None
-    try:
-        handle = h5py.File(partial, "w", libver="latest")
-        if os.fstat(fd).st_ino != os.lstat(partial).st_ino:   # swapped under us
-            handle.close()
-            raise RunFileError(f"{partial} was replaced while the run was starting")
-        return handle
-    except WRITE_ERRORS as exc:
-        raise RunFileError(f"cannot create {partial}: {one_line(exc, 160)}") from None
-    finally:
-        os.close(fd)
 
 
 class RunWriter:
@@ -191,19 +85,19 @@ class RunWriter:
         try:
             if os.path.lexists(final) and not overwrite:   # finished while we waited
                 raise _never_overwritten(final)
-            if _regular_or_absent(partial) is not None:
+            if regular_or_absent(partial) is not None:
                 if not overwrite:
                     raise RunFileError(f"{partial} holds an unfinished run; continue it with "
                                        "--resume or start again with --overwrite")
-                if not _is_run_file(partial):
+                if not is_run_file(partial):
                     raise RunFileError(f"{partial} is not a sojourn run file, so it is not "
                                        "replaced; move it away, or choose another output with -o")
                 partial.unlink()
             size = layout.allocated_bytes(setup, compress)
-            short = _room_for(final.parent, size + HEADROOM)
+            short = room_for(final.parent, size + HEADROOM)
             if short:
                 raise RunFileError(f"cannot allocate {partial} ({size / 2**20:.1f} MiB): {short}")
-            handle = _create_exclusively(partial)
+            handle = create_exclusively(partial)
             try:
                 layout.create(handle, setup, backend, compress)
                 handle.swmr_mode = True
@@ -227,7 +121,7 @@ class RunWriter:
         checkpointed state (step, t, psi, raw_absorbed) to continue from."""
         final = Path(final)
         partial = partial_path(final)
-        if _regular_or_absent(partial) is None:
+        if regular_or_absent(partial) is None:
             raise RunFileError(f"nothing to resume: {partial} does not exist")
         ignore_file_size_signal()
         lock = WriteLock(final)
@@ -250,6 +144,10 @@ class RunWriter:
         try:
             if handle.attrs.get("format") != layout.FORMAT:
                 raise RunFileError(f"{partial} is not a sojourn run file")
+            if handle.attrs.get("format_version") != layout.FORMAT_VERSION:
+                raise RunFileError(f"{partial} was started by another version of sojourn (run "
+                                   f"file format {handle.attrs.get('format_version')}); it cannot "
+                                   "be resumed: start again with --overwrite")
             committed = layout.validate(handle, partial)
             if (handle.attrs.get("scenario") or "") != (scenario_text or ""):
                 raise RunFileError(f"{partial} was started from a different scenario text; "
@@ -342,7 +240,7 @@ class RunWriter:
             size = os.stat(self.partial).st_size
         except OSError:
             return None
-        return _room_for(self.partial.parent, HEADROOM + self._growth * (len(self._pending) + 2),
+        return room_for(self.partial.parent, HEADROOM + self._growth * (len(self._pending) + 2),
                          size)
 
     def _fail(self, exc: BaseException, stopped: bool = False):
