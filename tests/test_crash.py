@@ -13,7 +13,7 @@ import pytest
 
 from sojourn.build import build
 from sojourn.workflows import run as execute
-from sojourn.store.runfile import RunFile, lock_path, partial_path
+from sojourn.store import RunFile, lock_path, partial_path
 from sojourn.errors import RunFileError
 from sojourn.config.scenario import load
 

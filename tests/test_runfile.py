@@ -8,7 +8,7 @@ import pytest
 from sojourn.build import build
 from sojourn.cli import main
 from sojourn.workflows import run as execute
-from sojourn.store.runfile import FORMAT, RunFile, partial_path
+from sojourn.store import FORMAT, RunFile, partial_path
 from sojourn.errors import RunFileError
 from sojourn.config.scenario import load
 

@@ -167,7 +167,7 @@ def cmd_check(args) -> int:
 
 
 def describe_runfile(path) -> dict:
-    from .store.runfile import RunFile
+    from .store import RunFile
     with RunFile(path) as rf:
         attrs = rf.attrs
         obs = rf.observables()
@@ -178,7 +178,7 @@ def describe_runfile(path) -> dict:
             "sojourn_version": str(attrs.get("sojourn_version", "")),
             "created": str(attrs.get("created", "")), "units": rf.units,
             "provenance": json.loads(attrs.get("provenance", "{}")),
-            "grid_points": int(rf.h5["grid/x"].shape[0]),
+            "grid_points": rf.points,
             "snapshots": n, "t_last": float(obs["t"][-1]) if n else None,
             "dt": float(attrs["dt"]), "scheme": str(attrs["scheme"]),
             "detectors": [float(d) for d in rf.samples()["detectors"]],

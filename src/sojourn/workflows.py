@@ -21,8 +21,7 @@ from .engine.propagate import ORDER
 from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
 from .measure.core import DelayReport, measure_delays
-from .store.paths import output_path
-from .store.runfile import RunFile, RunWriter
+from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
 from .theory.solver import synthesize as synthesize_states
 
 SAFETY = 1.25   # factor on the Richardson estimate (grid convergence index, Roache 1994)
@@ -49,6 +48,15 @@ def run(setup: Setup, output: Optional[Path] = None, overwrite: bool = False,
     return writer.finish()
 
 
+def run_in_memory(setup: Setup, progress: Optional[Callable[[int, int], None]] = None) -> MemoryRun:
+    """Run a built scenario into memory (no file): a MemoryRun, read like a RunFile."""
+    if not isinstance(setup, Setup):
+        raise TypeError("run_in_memory needs a built Setup (sojourn.build.build)")
+    recorder = MemoryRun(setup, backend_name())
+    evolve(setup, recorder, None, progress)
+    return recorder.finish()
+
+
 def run_and_measure(setup: Setup, output: Path,
                     with_error_bars: bool = False) -> tuple[Path, DelayReport]:
     """Run into `output` (continuing a `.partial` file when one is there,
@@ -62,7 +70,7 @@ def run_and_measure(setup: Setup, output: Path,
         except RunFileError:
             complete = False
     if not complete:
-        partial = output.with_name(output.name + ".partial")
+        partial = partial_path(output)
         try:
             output = run(setup, output, overwrite=True, resume=partial.exists())
         except RunFileError:     # a partial file that cannot be resumed: start again
@@ -139,7 +147,7 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
     The finer-grid rerun costs about 8×, the half-step rerun 2× the base run.
     """
     say = progress or (lambda message: None)
-    path = Path(runfile_or_path.path if isinstance(runfile_or_path, RunFile) else runfile_or_path)
+    path = Path(runfile_or_path.path if isinstance(runfile_or_path, RunReader) else runfile_or_path)
     base = measure_delays(runfile_or_path)
     with RunFile(path) as rf:
         scenario = rf.scenario()

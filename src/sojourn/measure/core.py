@@ -40,7 +40,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..model import packets
-from ..store.runfile import RunFile
+from ..store import RunFile, RunReader
 from ..config.scenario import with_changes
 from ..errors import SojournError, RunFileError, MeasureError
 
@@ -562,20 +562,20 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
     """Measure the delays of a run file by every method and set each beside
     its own prediction. `reference_run` optionally names a run of the same
     packet without the potential, used instead of the exact free evolution."""
-    own = not isinstance(runfile_or_path, RunFile)
+    own = not isinstance(runfile_or_path, RunReader)
     rf = RunFile(runfile_or_path) if own else runfile_or_path
     ref_file = None
     try:
         run = _forward(rf)
         ref = None
         if reference_run is not None:
-            ref_file = reference_run if isinstance(reference_run, RunFile) else RunFile(reference_run)
+            ref_file = reference_run if isinstance(reference_run, RunReader) else RunFile(reference_run)
             ref = _forward(ref_file)
         return _measure(run, ref)
     finally:
         if own:
             rf.close()
-        if ref_file is not None and not isinstance(reference_run, RunFile):
+        if ref_file is not None and not isinstance(reference_run, RunReader):
             ref_file.close()
 
 

@@ -23,7 +23,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..model.packets import PacketInfo, free_evolution
-from ..store.runfile import RunFile
+from ..store import RunFile
 from ..errors import SojournError, RenderError
 
 CURVES = ("density", "real", "imag", "phase", "reference", "potential")

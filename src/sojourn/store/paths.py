@@ -1,4 +1,4 @@
-"""Where a run writes: the names of its files."""
+"""Where a run writes: the names of its files (result, unfinished run, lock)."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -13,3 +13,15 @@ def output_path(scenario) -> Path:
             path = Path(scenario.source).parent / path
         return path
     return Path("outputs") / f"{scenario.name}.h5"
+
+
+def partial_path(path: Path) -> Path:
+    """NAME.h5.partial: where a run writes until it is complete."""
+    path = Path(path)
+    return path.with_name(path.name + ".partial")
+
+
+def lock_path(path: Path) -> Path:
+    """NAME.h5.lock: held by the one process writing NAME.h5."""
+    path = Path(path)
+    return path.with_name(path.name + ".lock")

@@ -21,7 +21,6 @@ from __future__ import annotations
 import contextlib
 import csv
 import difflib
-import fcntl
 import hashlib
 import io
 import itertools
@@ -39,12 +38,12 @@ from ..config.scenario import Scenario, model_at, format_path, load, loads, pars
 from .. import workflows
 from ..build import build
 from ..errors import RunFileError, SojournError, SweepError, one_line
+from ..store import RunFile, folder_lock
 
 SWEEP_KEYS = ("base", "vary", "pairing", "output")
 PAIRINGS = ("product", "zip")
 METHODS = ("centroid", "arrival", "spectral")     # the delay methods of `measure`
 CHANNELS = ("reflection", "transmission")
-LOCK_NAME = ".sweep.lock"
 STOP_NAME = ".sweep.stop"      # present while an interrupted sweep stops its workers
 TABLE_CSV, TABLE_JSON, SUMMARY_PNG = "table.csv", "table.json", "summary.png"
 RESULT_FORMAT = "sojourn.sweep-point"
@@ -258,7 +257,6 @@ def _run_and_measure(task: dict, folder: Path, name: str) -> dict:
 
 def _report_values(report, path: Path, scenario: Scenario) -> dict:
     """The table's numbers from a delay report: R, T and per channel the delays."""
-    from ..store.runfile import RunFile
     with RunFile(path) as rf:
         obs = rf.observables()
     left = float(obs["P_left"][-1] + obs["absorbed_left"][-1])
@@ -376,7 +374,6 @@ def _task(sweep: Sweep, point: Point, folder: Path, verify: bool) -> dict:
 
 def _recorded(folder: Path, point: Point, verify: bool) -> Optional[dict]:
     """The recorded result of a complete point (None if it must run)."""
-    from ..store.runfile import RunFile, RunFileError
     try:
         result = json.loads((folder / f"{point.name}.json").read_text(encoding="utf-8"))
     except (OSError, ValueError):
@@ -404,27 +401,6 @@ def _counts(results: dict) -> dict:
     for r in results.values():
         counts[r["status"]] = counts.get(r["status"], 0) + 1
     return counts
-
-
-@contextlib.contextmanager
-def folder_lock(folder: Path):
-    """Hold an exclusive lock on the output folder (fcntl.flock on .sweep.lock)."""
-    path = Path(folder) / LOCK_NAME
-    handle = open(path, "a+")
-    try:
-        try:
-            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            raise SweepError(f"{folder}: another sweep is running in this folder (it holds "
-                             f"{LOCK_NAME}); wait for it to finish or choose another output "
-                             "folder") from None
-        handle.seek(0)
-        handle.truncate()
-        handle.write(f"{os.getpid()}\n")
-        handle.flush()
-        yield path
-    finally:
-        handle.close()
 
 
 @contextlib.contextmanager

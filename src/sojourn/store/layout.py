@@ -1,0 +1,313 @@
+"""The run file's layout, written down once: what the writer creates and what
+every reader checks on open (README.md describes it for people).
+
+    /                  attributes ROOT_ATTRS (the scenario text, units, numbers of the run)
+    /grid/x            (N,) float, strictly increasing
+    /potential/V       (N,) float; /potential/absorber (N,) float when there is one
+    /snapshots/t, step, psi     (S,), (S,), (S, N) complex — S rows allocated at the start;
+                       attrs "committed": how many rows hold committed snapshots
+    /observables/NAME  (S,) float for NAME in ("t",) + OBSERVABLES; attrs region, reference
+    /observables/samples/t, NAME, flux   (M,), (M,), (M, D): the samples between snapshots
+                       (M rows allocated at the start); attrs detectors (D or 0 positions)
+    /checkpoint/a, /checkpoint/b   two slots, each psi (N,) complex and attrs
+                       step, t, snapshots, samples, absorbed_left, absorbed_right
+
+Every dataset is allocated at its final size when the run starts (its fill
+written), so a disk too small is found then and the file barely grows during
+the run (compressed ψ aside). A commit writes the new rows and the spare checkpoint slot, flushes, then
+writes /snapshots attrs "committed" LAST and flushes again. The committed state
+is the slot whose "snapshots" equals that counter; its "samples" says how many
+samples are committed. Rows past the counters are never read.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+import platform
+import sys
+from dataclasses import dataclass
+
+import h5py
+import numpy as np
+import scipy
+
+from .. import __version__
+from ..errors import RunFileError
+
+FORMAT = "sojourn.run"
+FORMAT_VERSION = 2
+OBSERVABLES = ("norm", "x_mean", "p_mean", "energy", "P_left", "P_right", "P_region",
+               "absorbed_left", "absorbed_right")
+SAMPLES = ("norm", "P_region", "absorbed_left", "absorbed_right")
+SLOTS = ("a", "b")
+SLOT_ATTRS = {"step": "int", "t": "float", "snapshots": "int", "samples": "int",
+              "absorbed_left": "float", "absorbed_right": "float"}
+# attribute -> kind: str, int, float (finite), json (an object)
+ROOT_ATTRS = {
+    "format": "str", "format_version": "int", "sojourn_version": "str", "status": "str",
+    "created": "str", "finished": "str", "scenario": "str", "scenario_source": "str",
+    "title": "str", "units": "json", "provenance": "json", "dt": "float", "steps": "int",
+    "record_steps": "int", "sample_steps": "int", "scheme": "str", "precision": "str",
+    "hbar": "float", "mass": "float", "reference": "float", "packet": "json",
+}
+PACKET_KEYS = ("center", "width", "k0", "sigma_k", "energy", "mean_energy", "group_velocity",
+               "level")
+# dataset -> (dtype kind, shape in symbols); N grid points, S snapshot rows, M sample rows,
+# D detector columns
+DATASETS = {
+    "grid/x": ("f", ("N",)), "potential/V": ("f", ("N",)),
+    "snapshots/t": ("f", ("S",)), "snapshots/step": ("i", ("S",)),
+    "snapshots/psi": ("c", ("S", "N")),
+    **{f"observables/{name}": ("f", ("S",)) for name in ("t",) + OBSERVABLES},
+    **{f"observables/samples/{name}": ("f", ("M",)) for name in ("t",) + SAMPLES},
+    "observables/samples/flux": ("f", ("M", "D")),
+    **{f"checkpoint/{slot}/psi": ("c", ("N",)) for slot in SLOTS},
+}
+OPTIONAL = {"potential/absorber": ("f", ("N",))}
+SMALL = ("grid/x", "potential/V", "potential/absorber")   # checked finite on open
+
+
+def provenance(backend: str) -> dict:
+    cpu = platform.processor() or platform.machine()
+    try:
+        with open("/proc/cpuinfo") as handle:
+            cpu = next(line.split(":", 1)[1].strip() for line in handle
+                       if line.startswith("model name"))
+    except (OSError, StopIteration):
+        pass
+    return {"python": sys.version.split()[0], "numpy": np.__version__, "scipy": scipy.__version__,
+            "h5py": h5py.__version__, "hdf5": h5py.version.hdf5_version, "fft": backend,
+            "cpu": cpu, "cores": os.cpu_count(), "platform": platform.platform()}
+
+
+def root_attributes(setup, backend: str) -> dict:
+    """The root attributes of a new run (the in-memory twin uses the same)."""
+    sc = setup.scenario
+    return {
+        "format": FORMAT, "format_version": FORMAT_VERSION, "sojourn_version": __version__,
+        "status": "running", "created": _dt.datetime.now(_dt.timezone.utc).isoformat(),
+        "finished": "", "scenario": sc.text or "", "scenario_source": sc.source or "",
+        "title": sc.title, "units": json.dumps(sc.unit_system.as_dict()),
+        "provenance": json.dumps(provenance(backend)),
+        "dt": float(setup.dt), "steps": int(setup.steps), "record_steps": int(setup.record_steps),
+        "sample_steps": int(setup.sample_steps), "scheme": sc.evolve.scheme,
+        "precision": sc.evolve.precision, "hbar": float(setup.hbar), "mass": float(setup.mass),
+        "reference": float(setup.reference), "packet": json.dumps(setup.packet.__dict__),
+    }
+
+
+def psi_dtype(setup) -> str:
+    return "c8" if setup.scenario.evolve.precision == "single" else "c16"
+
+
+def _early() -> h5py.h5p.PropDCID:
+    """Storage allocated when the dataset is created: a disk too small fails now."""
+    dcpl = h5py.h5p.create(h5py.h5p.DATASET_CREATE)
+    dcpl.set_alloc_time(h5py.h5d.ALLOC_TIME_EARLY)
+    return dcpl
+
+
+def _rows(group, name, rows, tail=(), dtype="f8"):
+    """A dataset of `rows` rows, allocated now, extendible along its first axis,
+    checksummed (fletcher32) so that damaged data is refused on read."""
+    chunk = max(1, min(rows, 4096 // max(1, int(np.prod(tail)))))
+    return group.create_dataset(name, shape=(rows, *tail), maxshape=(None, *tail),
+                                chunks=(chunk, *tail), dtype=dtype, fletcher32=True,
+                                dcpl=_early())
+
+
+def sample_rows(setup) -> int:
+    """The samples a run takes: t = 0 and every `sample_steps` steps."""
+    return setup.steps // setup.sample_steps + 1
+
+
+def allocated_bytes(setup, compress: bool) -> int:
+    """The bytes `create` allocates (ψ rows not counted when compressed: they
+    are allocated as they are written)."""
+    n, rows, item = setup.grid.points, setup.snapshots, np.dtype(psi_dtype(setup)).itemsize
+    columns = len(SAMPLES) + 1 + max(len(setup.detectors), 1)
+    return ((0 if compress else rows * n * item) + rows * (len(OBSERVABLES) + 3) * 8
+            + sample_rows(setup) * columns * 8 + 3 * n * 8 + 2 * n * item)
+
+
+def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
+    """Write the layout of a new run into an empty file (S rows allocated)."""
+    sc = setup.scenario
+    u = sc.unit_system
+    f.attrs.update(root_attributes(setup, backend))
+    n, rows = setup.grid.points, setup.snapshots
+    grid = f.create_group("grid")
+    x = grid.create_dataset("x", data=setup.grid.x)
+    x.attrs.update({"units": u.length, "dx": setup.grid.dx})
+    x.make_scale("x")
+    pot = f.create_group("potential")
+    pot.create_dataset("V", data=setup.V).attrs["units"] = u.energy
+    pot["V"].dims[0].attach_scale(x)
+    pot.attrs["description"] = setup.potential.describe()
+    if setup.W is not None:
+        pot.create_dataset("absorber", data=setup.W).attrs["units"] = u.energy
+        pot["absorber"].dims[0].attach_scale(x)
+    snaps = f.create_group("snapshots")
+    t = _rows(snaps, "t", rows)
+    t.attrs["units"] = u.time
+    t.make_scale("t")
+    _rows(snaps, "step", rows, dtype="i8")
+    psi = snaps.create_dataset(
+        "psi", shape=(rows, n), maxshape=(None, n), chunks=(1, n), dtype=psi_dtype(setup),
+        fletcher32=True, dcpl=_early(),
+        **({"compression": "gzip", "compression_opts": 1, "shuffle": True} if compress else {}))
+    psi.dims[0].attach_scale(t)
+    psi.dims[1].attach_scale(x)
+    snaps.attrs["committed"] = np.int64(0)
+    obs = f.create_group("observables")
+    _rows(obs, "t", rows).attrs["units"] = u.time
+    for name in OBSERVABLES:
+        _rows(obs, name, rows)
+    obs.attrs["region"] = np.array(setup.region if setup.region else (np.nan, np.nan), float)
+    obs.attrs["reference"] = float(setup.reference)
+    samples = obs.create_group("samples")
+    m = sample_rows(setup)
+    _rows(samples, "t", m).attrs["units"] = u.time
+    for name in SAMPLES:
+        _rows(samples, name, m)
+    _rows(samples, "flux", m, (max(len(setup.detectors), 1),))
+    samples.attrs["detectors"] = np.array(setup.detectors, dtype=float)
+    ck = f.create_group("checkpoint")
+    for slot in SLOTS:
+        g = ck.create_group(slot)
+        g.create_dataset("psi", shape=(n,), dtype=psi_dtype(setup), fletcher32=True, chunks=(n,))
+        for key, kind in SLOT_ATTRS.items():
+            g.attrs[key] = np.int64(-1) if kind == "int" else -1.0
+
+
+@dataclass(frozen=True)
+class Committed:
+    """What a reader may trust: committed snapshots and samples, and the
+    checkpoint slot holding the state at the last committed snapshot."""
+
+    snapshots: int
+    samples: int
+    slot: str        # "" before the first commit
+    points: int
+
+
+def _fail(path, what: str):
+    raise RunFileError(f"{path}: damaged run file ({what})")
+
+
+def _attr(node, key, kind, path, where):
+    if key not in node.attrs:
+        _fail(path, f"attribute {where}{key} is missing")
+    value = node.attrs[key]
+    if isinstance(value, bytes):
+        value = value.decode("utf-8", "replace")
+    if kind in ("str", "json"):
+        if not isinstance(value, str):
+            _fail(path, f"attribute {where}{key} is not text")
+        if kind == "json":
+            try:
+                value = json.loads(value)
+            except ValueError:
+                _fail(path, f"attribute {where}{key} is not valid JSON")
+            if not isinstance(value, dict):
+                _fail(path, f"attribute {where}{key} is not a JSON object")
+        return value
+    array = np.asarray(value)
+    if array.shape not in ((), (1,)) or array.dtype.kind not in ("iu" if kind == "int" else "iuf"):
+        _fail(path, f"attribute {where}{key} is not one {'integer' if kind == 'int' else 'number'}")
+    number = array.reshape(()).item()
+    if kind == "float" and not np.isfinite(number):
+        _fail(path, f"attribute {where}{key} is not finite")
+    return number
+
+
+def _datasets(version: int) -> dict:
+    """The required datasets of a format version. Version 1 (read only) grew its
+    rows as it went: ψ may hold a few rows past the others, and its checkpoint
+    was one state, not two slots."""
+    if version >= 2:
+        return DATASETS
+    out = {k: v for k, v in DATASETS.items() if not k.startswith("checkpoint/")}
+    out["snapshots/psi"] = ("c", ("P", "N"))
+    return out
+
+
+def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
+    """Check the file against the layout above; raise RunFileError naming the
+    first thing missing or wrong. Returns what is committed."""
+    attrs = {key: _attr(f, key, kind, path, "/") for key, kind in ROOT_ATTRS.items()
+             if version >= 2 or key != "finished"}
+    for key in ("dt", "hbar", "mass"):
+        if attrs[key] <= 0:
+            _fail(path, f"attribute /{key} is not positive")
+    for key in ("steps", "record_steps", "sample_steps"):
+        if attrs[key] < (0 if key == "steps" else 1):
+            _fail(path, f"attribute /{key} is out of range")
+    for key in ("length", "energy", "time"):
+        if not isinstance(attrs["units"].get(key), str):
+            _fail(path, f"attribute /units has no '{key}'")
+    packet = attrs["packet"]
+    for key in PACKET_KEYS:
+        if not isinstance(packet.get(key), (int, float)) or not np.isfinite(packet[key]):
+            _fail(path, f"attribute /packet has no finite '{key}'")
+    sizes: dict = {}
+    for name, (kind, shape) in {**_datasets(version),
+                                **{k: v for k, v in OPTIONAL.items() if k in f}}.items():
+        node = f.get(name)
+        if not isinstance(node, h5py.Dataset):
+            _fail(path, f"dataset /{name} is missing")
+        if node.dtype.kind not in ("iu" if kind == "i" else kind):
+            _fail(path, f"dataset /{name} has type {node.dtype}, not {kind}")
+        if len(node.shape) != len(shape):
+            _fail(path, f"dataset /{name} has shape {node.shape}, not {len(shape)}-dimensional")
+        for symbol, size in zip(shape, node.shape):
+            if sizes.setdefault(symbol, size) != size:
+                _fail(path, f"dataset /{name} has shape {node.shape}; {symbol} = {sizes[symbol]} "
+                            "elsewhere")
+    if sizes["N"] < 2:
+        _fail(path, "fewer than two grid points")
+    for name in SMALL:
+        if name in f and not np.all(np.isfinite(f[name][...])):
+            _fail(path, f"dataset /{name} holds non-finite values")
+    if not np.all(np.diff(f["grid/x"][...]) > 0):
+        _fail(path, "dataset /grid/x is not increasing")
+    region = _array_attr(f["observables"], "region", 2, path, allow_nan=True)
+    _attr(f["observables"], "reference", "float", path, "/observables/")
+    detectors = _array_attr(f["observables/samples"], "detectors", None, path)
+    if len(detectors) not in (0, sizes["D"]) or (len(detectors) == 0 and sizes["D"] != 1):
+        _fail(path, "attribute /observables/samples/detectors does not match the flux columns")
+    del region
+    if version < 2:   # committed: what has its observables; a crash could leave extra ψ rows
+        if sizes["P"] < sizes["S"]:
+            _fail(path, "fewer ψ rows than snapshot times")
+        return Committed(sizes["S"], sizes["M"], "", sizes["N"])
+    committed = _attr(f["snapshots"], "committed", "int", path, "/snapshots/")
+    if not 0 <= committed <= sizes["S"]:
+        _fail(path, f"/snapshots commit counter {committed} outside 0..{sizes['S']}")
+    slots = {}
+    for slot in SLOTS:
+        g = f[f"checkpoint/{slot}"]
+        slots[slot] = {key: _attr(g, key, kind, path, f"/checkpoint/{slot}/")
+                       for key, kind in SLOT_ATTRS.items()}
+    current = [s for s, values in slots.items() if values["snapshots"] == committed]
+    if committed == 0:
+        return Committed(0, 0, "", sizes["N"])
+    if len(current) != 1:
+        _fail(path, f"no checkpoint slot matches the commit counter {committed}")
+    samples = slots[current[0]]["samples"]
+    if not 0 <= samples <= sizes["M"]:
+        _fail(path, f"checkpoint sample count {samples} outside 0..{sizes['M']}")
+    return Committed(int(committed), int(samples), current[0], sizes["N"])
+
+
+def _array_attr(node, key, length, path, allow_nan=False) -> np.ndarray:
+    where = f"{node.name.rstrip('/')}/{key}"
+    if key not in node.attrs:
+        _fail(path, f"attribute {where} is missing")
+    value = np.asarray(node.attrs[key])
+    if value.dtype.kind not in "iuf" or value.ndim != 1 or (length and len(value) != length):
+        _fail(path, f"attribute {where} is not a list of {length or 'some'} numbers")
+    if not allow_nan and not np.all(np.isfinite(value)):
+        _fail(path, f"attribute {where} is not finite")
+    return value.astype(float)
