@@ -10,8 +10,20 @@ from scipy.optimize import brentq, minimize_scalar
 
 from sojourn.theory import closed_forms as cf
 from sojourn.model import potentials as P
-from sojourn.theory import solver as th
+from sojourn import theory as th
 from sojourn.config.scenario import loads
+
+
+def predict(sc, **kw):
+    """packet_prediction with the numbers a run of `sc` uses."""
+    i = th.scenario_inputs(sc)
+    return th.packet_prediction(i.potential, i.packet, hbar=i.hbar, mass=i.mass,
+                                reference=i.reference, region=i.region, **kw)
+
+
+def scatter_sc(sc, E):
+    """scatter with the scenario's ħ, potential and packet direction."""
+    return th.scatter(sc.build_potential(), E, hbar=sc.hbar, direction=sc.packet.direction)
 
 
 def pot(*terms, mass=1.0):
@@ -270,7 +282,7 @@ evolve: {{duration: 300.0}}
 def test_packet_predictions_agree_at_half_the_step_height():
     # source: PHYSICS §5 (unit step, σ = 20): the three averages agree to 2e-6 at
     # E₀ = V₀/2, ⟨dφ/dk⟩/v₀ = 2.00252, Wigner 2.0
-    p = th.packet_prediction(_step_scenario(0.5))
+    p = predict(_step_scenario(0.5))
     r = p.reflection
     assert r.centroid_delay == pytest.approx(2.00252, abs=5e-6)
     assert r.wigner_delay == pytest.approx(2.0, rel=1e-12)
@@ -283,7 +295,7 @@ def test_packet_predictions_agree_at_half_the_step_height():
 def test_packet_predictions_differ_away_from_the_minimum(E0, spread):
     # source: PHYSICS §5: at 0.2 V₀ and 0.8 V₀ the averages differ by ~1.2e-3, at 0.1 V₀
     # by 2.8e-3 (ħ = m = V₀ = 1, σ = 20); the sign follows dτ/dE
-    r = th.packet_prediction(_step_scenario(E0)).reflection
+    r = predict(_step_scenario(E0)).reflection
     rel = (r.centroid_delay - r.flux_delay) / r.flux_delay
     assert abs(rel) == pytest.approx(spread, rel=0.1)
     assert np.sign(rel) == (1 if E0 > 0.5 else -1)
@@ -293,7 +305,7 @@ def test_packet_predictions_differ_away_from_the_minimum(E0, spread):
 def test_packet_prediction_first_order_bandwidth_correction():
     # common practice, no source: to first order in σ_k², centroid − flux = (dτ/dk)σ_k²/k₀
     E0 = 0.2
-    p = th.packet_prediction(_step_scenario(E0))
+    p = predict(_step_scenario(E0))
     k0, sk = p.k0, p.sigma_k
     dk = 1e-4
     tau = cf.step_delay(np.array([(k0 - dk) ** 2 / 2, (k0 + dk) ** 2 / 2]), 1.0)
@@ -332,12 +344,53 @@ packet: {{center: {-250 / a0_nm}, width: {20 / a0_nm}, energy: {0.08 / Eh_eV}}}
 evolve: {{duration: 100.0}}
 """)
     E_lab = np.array([0.05, 0.08, 0.12, 0.2])
-    s_lab = th.scatter_scenario(lab, E_lab)
-    s_at = th.scatter_scenario(atomic, E_lab / Eh_eV)
+    s_lab = scatter_sc(lab, E_lab)
+    s_at = scatter_sc(atomic, E_lab / Eh_eV)
     assert np.allclose(s_lab.T, s_at.T, rtol=1e-9)
     assert np.allclose(s_lab.delay_transmission, s_at.delay_transmission * t_fs, rtol=1e-9)
     assert np.allclose(s_lab.dwell, s_at.dwell * t_fs, rtol=1e-9)
-    p_lab, p_at = th.packet_prediction(lab), th.packet_prediction(atomic)
+    p_lab, p_at = predict(lab), predict(atomic)
     assert p_lab.reflection.flux_delay == pytest.approx(p_at.reflection.flux_delay * t_fs, rel=1e-8)
     assert p_lab.transmission.probability == pytest.approx(p_at.transmission.probability,
                                                            rel=1e-8)
+
+
+# ---------------------------------------------------------------------------------------
+# the run's own packet
+
+
+def test_prediction_uses_the_runs_k0_where_the_packet_starts_on_a_slope():
+    # source: Landau & Lifshitz, QM, §25, problems: R of the Fermi step above its top,
+    # [sinh(πa(k−q))/sinh(πa(k+q))]² (closed_forms.fermi_step_reflection_probability),
+    # averaged by scipy.integrate.quad over the packet's |ψ̃₀(k)|² with E(k) = V(x₀) + k²/2,
+    # the energies of the packet the run starts (k₀ given, V(x₀) ≈ 0.05, not the left level 0)
+    from scipy.integrate import quad
+    from sojourn.build import build
+    a, x0, k0, sigma = 0.5, -1.4722, 1.8, 20.0
+    sc = loads(f"""
+units: atomic
+grid: {{span: [-600.0, 600.0], points: 4096}}
+potential:
+  - smooth_step: {{at: 0.0, height: 1.0, width: {a}}}
+packet: {{center: {x0}, width: {sigma}, wavenumber: {k0}}}
+evolve: {{duration: 300.0}}
+""")
+    run_packet = build(sc).packet
+    level = 1.0 / (1.0 + np.exp(-x0 / a))
+    assert run_packet.level == pytest.approx(level, rel=1e-12) and level > 0.04
+    p = predict(sc)
+    assert p.k0 == pytest.approx(run_packet.k0, rel=1e-15)
+    assert p.energy0 == pytest.approx(run_packet.energy, rel=1e-15)
+    sk = 1 / (2 * sigma)
+
+    def average(lev):
+        g = lambda k: np.exp(-0.5 * ((k - k0) / sk) ** 2)
+        R = lambda k: g(k) * float(cf.fermi_step_reflection_probability(lev + k * k / 2, 1.0, a))
+        lo, hi = k0 - 10 * sk, k0 + 10 * sk
+        return (quad(R, lo, hi, epsabs=0, epsrel=1e-12, limit=200)[0]
+                / quad(g, lo, hi, epsabs=0, epsrel=1e-12)[0])
+
+    expected = average(level)
+    assert p.reflection.probability == pytest.approx(expected, rel=1e-6)
+    # the incidence-side level (the old convention) gives a clearly different number
+    assert abs(average(0.0) / expected - 1) > 0.1
