@@ -13,7 +13,8 @@ from sojourn import theory as th
 from sojourn.theory.layers import solve_layers
 from sojourn.errors import TheoryError
 from sojourn.cli import main
-from sojourn.config.scenario import loads
+from sojourn.config.scenario import PacketSpec, loads
+from sojourn.model.packets import describe
 from sojourn.errors import SojournError
 
 
@@ -173,15 +174,55 @@ def test_stationary_state_far_field_has_the_stated_form():
     assert np.allclose(psi[:, 1], s.t * np.exp(1j * k * (x[1] - 2.0)))
 
 
+def _ode_dwell(layers, E, x_t):
+    """∫|ψ|² dx / k over the layers (ħ = m = 1), ψ integrated by scipy's solve_ivp
+    (DOP853) from ψ = e^{ik(x−x_t)} at x_t back to the entry, one layer at a time,
+    then divided by the incident amplitude: independent of the layer solver."""
+    from scipy.integrate import solve_ivp
+    k = np.sqrt(2 * E)
+    y = np.array([1.0 + 0j, 1j * k, 0.0 + 0j])
+    for a, b, V in reversed(layers):
+        def rhs(x, y):
+            return [y[1], 2 * (V - E) * y[0], abs(y[0]) ** 2]
+        y = solve_ivp(rhs, (b, a), y, method="DOP853", rtol=1e-12, atol=1e-14).y[:, -1]
+    incident = 0.5 * (y[0] + y[1] / (1j * k))
+    return float(-y[2].real) / abs(incident) ** 2 / k
+
+
 def test_dwell_time_equals_integral_of_the_stationary_state():
-    # Büttiker, Phys. Rev. B 27, 6178 (1983): τ_D = ∫|ψ|² dx over the region / (ħk/m)
+    # Büttiker, Phys. Rev. B 27, 6178 (1983): τ_D = ∫|ψ|² dx over the region / (ħk/m);
+    # ψ from scipy's ODE solver (independent), and the returned states agree with it
     V = pot(*CASES["double"])
     E = np.array([0.3, 0.9])
     s = scatter(V, E)
+    layers = [(0.0, 1.5, 1.0), (1.5, 4.0, 0.0), (4.0, 5.5, 1.0)]
+    for i, e in enumerate(E):
+        assert s.dwell[i] == pytest.approx(_ode_dwell(layers, e, 5.5), rel=1e-8)
     x = np.linspace(0.0, 5.5, 200001)
     psi = th.stationary_state(V, E, x, hbar=1.0)
     integral = np.trapezoid(np.abs(psi) ** 2, x, axis=1)
     assert np.allclose(s.dwell, integral / np.sqrt(2 * E), rtol=1e-8)
+
+
+def test_dwell_and_state_at_an_exact_inner_level():
+    # barrier V₀ = 0.5 on [0, a = 3], ħ = m = 1, E = V₀ (k = 1): ψ'' = 0 inside, so
+    # matching ψ = t e^{ik(x−a)} at a and e^{ikx} + r e^{−ikx} at 0 gives
+    # ψ = t(1 + ik(x−a)), t = 2/(2 − ika); ∫₀³|ψ|²dx / v = 12·|t|² = 12·4/13 (worked
+    # by hand; scipy.integrate.quad of |ψ|² checks the integral). Before: 3.0014.
+    from scipy.integrate import quad
+    a, k = 3.0, 1.0
+    t = 2 / (2 - 1j * k * a)
+    exact = quad(lambda x: abs(t * (1 + 1j * k * (x - a))) ** 2, 0.0, a, epsabs=0,
+                 epsrel=1e-13)[0] / k
+    assert exact == pytest.approx(12 * 4 / 13, rel=1e-12)
+    V = pot(P.Barrier(start=0.0, end=a, height=0.5))
+    s = scatter(V, [0.5])
+    assert s.dwell[0] == pytest.approx(exact, rel=1e-8)
+    assert s.T[0] == pytest.approx(abs(t) ** 2, rel=1e-12)
+    assert _ode_dwell([(0.0, a, 0.5)], 0.5, a) == pytest.approx(exact, rel=1e-8)
+    x = np.linspace(0.0, a, 13)
+    psi = th.stationary_state(V, [0.5], x, hbar=1.0)[0]
+    assert np.max(np.abs(psi - t * (1 + 1j * k * (x - a)))) < 1e-9
 
 
 def test_phase_unwrapping_follows_the_derivative():
@@ -283,3 +324,75 @@ def test_cli_theory_bad_input_is_one_line_exit_2(tmp_path, capsys):
     harmonic.write_text(STEP.replace("step: {at: 0.0, height: 1.0}", "harmonic: {omega: 0.1}"))
     assert main(["theory", str(harmonic)]) == 2
     assert "not a scattering potential" in capsys.readouterr().err
+
+
+def test_json_is_strict_where_a_number_is_missing(tmp_path, capsys):
+    # RFC 8259 has no NaN: a missing number is null
+    pred = th.ChannelPrediction("transmission", 0.5, float("nan"), None, float("inf"), 1.0, None)
+    assert pred.as_dict()["centroid_shift"] is None and pred.as_dict()["flux_delay"] is None
+    path = tmp_path / "hetero.yaml"
+    path.write_text(STEP.replace("units: atomic", "units: lab\nmass: 0.067").replace(
+        "height: 1.0", "height: 0.3").replace("energy: 0.5", "energy: 0.29"))
+    assert main(["theory", str(path), "--json"]) == 0
+
+    def refuse(name):
+        raise AssertionError(f"bare {name} in the JSON output")
+    data = json.loads(capsys.readouterr().out, parse_constant=refuse)
+    assert data["packet"]["reflection"]["flux_delay"] is not None
+
+
+def test_theory_and_the_run_use_one_dwell_region():
+    # the region rule of build.default_region: below the step top it reaches to the box
+    # edge, so the packet dwell is the evanescent penetration. Closed form (Büttiker,
+    # Phys. Rev. B 27, 6178 (1983), with the step state of Griffiths 2nd ed., Problem 2.34,
+    # ħ = m = V₀ = 1): τ_D(k) = |t|²(1 − e^{−2κL})/(2κk), |t|² = 4k²/(k² + κ²) = 2k²,
+    # averaged with scipy.integrate.quad over the packet's |ψ̃₀(k)|²
+    from scipy.integrate import quad
+    from sojourn.build import build
+    sc = loads(STEP)
+    table = th.theory_table(sc, np.array([0.5]))
+    assert table["dwell_region"] == list(build(sc).region) == [0.0, 600.0]
+    k0, sk, L = 1.0, 1 / 40, 600.0
+    g = lambda k: np.exp(-0.5 * ((k - k0) / sk) ** 2)
+    kappa = lambda k: np.sqrt(2 - k * k)
+    tau = lambda k: 2 * k * k * -np.expm1(-2 * kappa(k) * L) / (2 * kappa(k) * k)
+    lo, hi = k0 - 8 * sk, k0 + 8 * sk
+    expected = quad(lambda k: g(k) * tau(k), lo, hi, epsrel=1e-12)[0] / quad(g, lo, hi)[0]
+    assert table["packet"]["dwell"] == pytest.approx(expected, rel=1e-8)
+    assert table["dwell"][0] == pytest.approx(tau(1.0), rel=1e-10)
+
+
+def _packet(E0, center=-200.0, width=20.0, level=0.0):
+    """The PacketInfo a run makes of this packet (ħ = m = 1)."""
+    return describe(PacketSpec(center=center, width=width, energy=E0), 1.0, 1.0, level)
+
+
+def test_opaque_barrier_says_why_its_transmission_is_left_out():
+    # T ~ 16E(V₀−E)/V₀² e^{−2κa} (Griffiths 2nd ed., Problem 2.33, opaque limit): with
+    # κa = 20 the packet T (~1e-17) is far below what a run can measure; with κa = 1000 it
+    # is below the smallest float
+    V = pot(P.Barrier(start=0.0, end=20.0, height=1.0))
+    p = th.packet_prediction(V, _packet(0.5), hbar=1.0, mass=1.0)
+    T0 = 16 * 0.5 * 0.5 * np.exp(-2 * 20.0)
+    assert 0.1 * T0 < p.transmission.probability < 10 * T0
+    assert any("opaque barrier" in w and "cannot measure" in w for w in p.warnings)
+    V = pot(P.Barrier(start=0.0, end=1000.0, height=1.0))
+    p = th.packet_prediction(V, _packet(0.5), hbar=1.0, mass=1.0)
+    assert p.transmission is None and p.reflection.probability == pytest.approx(1, abs=1e-12)
+    assert any("opaque barrier" in w and "no transmission prediction" in w for w in p.warnings)
+    # a step below its top has no open channel at all: nothing to explain
+    step = th.packet_prediction(pot(P.Step(at=0.0, height=1.0)), _packet(0.5), hbar=1.0,
+                                mass=1.0)
+    assert step.transmission is None and step.warnings == ()
+
+
+def test_share_above_the_top_warns_only_when_the_band_straddles_it():
+    # share = ½ erfc((k_top − k₀)/(√2σ_k)) of the Gaussian |ψ̃₀(k)|² (common practice)
+    V = pot(P.Barrier(start=0.0, end=2.0, height=1.0))
+    far = th.packet_prediction(V, _packet(1.5), hbar=1.0, mass=1.0)
+    assert far.share_above_top == pytest.approx(1.0, abs=1e-12)
+    assert not any("above the barrier top" in w for w in far.warnings)
+    near = th.packet_prediction(V, _packet(1.0), hbar=1.0, mass=1.0)   # k₀ = k_top
+    assert near.share_above_top == pytest.approx(0.5, abs=1e-12)
+    text = [w for w in near.warnings if "above the barrier top" in w]
+    assert text and f"{100 * near.share_above_top:.3g}% of the packet" in text[0]

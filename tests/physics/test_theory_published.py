@@ -394,3 +394,75 @@ evolve: {{duration: 300.0}}
     assert p.reflection.probability == pytest.approx(expected, rel=1e-6)
     # the incidence-side level (the old convention) gives a clearly different number
     assert abs(average(0.0) / expected - 1) > 0.1
+
+
+# ---------------------------------------------------------------------------------------
+# a packet whose band reaches the step top, in lab and in atomic units
+
+HBAR_EV_FS = C.hbar / C.e * 1e15                       # CODATA via scipy.constants
+ME_EV_FS2_NM2 = C.m_e / C.e * 1e12                      # m_e in eV fs²/nm²
+
+
+def _hetero_step(E0, atomic=False):
+    """The hetero step (m = 0.067, V₀ = 0.3 eV, σ = 25 nm; E₀ in eV) in lab or atomic units."""
+    a0_nm = C.physical_constants["Bohr radius"][0] * 1e9
+    Eh_eV = C.physical_constants["Hartree energy in eV"][0]
+    L, E = (1 / a0_nm, 1 / Eh_eV) if atomic else (1.0, 1.0)
+    return loads(f"""
+units: {'atomic' if atomic else 'lab'}
+mass: 0.067
+grid: {{span: [{-1500 * L}, {500 * L}], points: 4096}}
+potential:
+  - step: {{at: 0.0, height: {0.3 * E}}}
+packet: {{center: {-500 * L}, width: {25 * L}, energy: {E0 * E}}}
+evolve: {{duration: 100.0}}
+""")
+
+
+def _step_top_quadrature(E0, V0=0.3, m_eff=0.067, sigma=25.0):
+    """(centroid, flux, spectral) reflection delays in fs by scipy.integrate.quad, from
+    the closed-form step amplitude (Griffiths 2nd ed., Problem 2.34: τ_R = ħ/√(E(V₀−E))
+    below the top, r = (k−q)/(k+q) real above it); the (k_th − k)^(−1/2) end is
+    integrated by QUADPACK's algebraic weight."""
+    from scipy.integrate import quad
+    hbar, m = HBAR_EV_FS, m_eff * ME_EV_FS2_NM2
+    c = hbar ** 2 / (2 * m)
+    k0, sk = np.sqrt(E0 / c), 1 / (2 * sigma)
+    k_th = np.sqrt(V0 / c)
+    lo, hi = max(k0 - 8 * sk, k0 / 100), k0 + 8 * sk
+    g = lambda k: np.exp(-0.5 * ((k - k0) / sk) ** 2)
+    R_above = lambda k: ((k - np.sqrt(k * k - k_th ** 2)) / (k + np.sqrt(k * k - k_th ** 2))) ** 2
+    tau_root = lambda k: hbar / np.sqrt(c * k * k * c * (k_th + k))   # τ·√(k_th − k)
+    opts = dict(epsabs=0, epsrel=1e-12, limit=200)
+    top = min(hi, k_th)
+
+    def below(f):    # ∫_lo^top f(k) τ(k) dk with the singular end at k_th
+        if top < k_th:
+            return quad(lambda k: f(k) * tau_root(k) / np.sqrt(k_th - k), lo, top, **opts)[0]
+        return quad(lambda k: f(k) * tau_root(k), lo, k_th, weight="alg", wvar=(0, -0.5),
+                    **opts)[0]
+
+    Z = quad(g, lo, hi, **opts)[0]
+    P_R = quad(g, lo, top, **opts)[0] + (quad(lambda k: g(k) * R_above(k), k_th, hi, **opts)[0]
+                                         if hi > k_th else 0.0)
+    flux = below(g) / P_R                       # R = 1 wherever τ ≠ 0
+    shift = below(lambda k: g(k) * hbar * k / m) / P_R
+    return shift / (hbar * k0 / m), flux, below(g) / Z
+
+
+@pytest.mark.parametrize("atomic", [False, True])
+def test_band_touching_the_step_top_gives_finite_delays_in_both_unit_systems(atomic):
+    # reference values from an independent quadrature (an external audit): E₀ = 0.2 eV →
+    # centroid 4.69335 fs, arrival = spectral 4.68765 fs; m = 0.067, V₀ = 0.3 eV, σ = 25 nm.
+    # This code gave NaN here in lab units (a node rounded to E = V₀).
+    t_fs = C.physical_constants["atomic unit of time"][0] * 1e15 if atomic else 1.0
+    r = predict(_hetero_step(0.2, atomic)).reflection
+    assert r.centroid_delay * t_fs == pytest.approx(4.69335, abs=6e-6)
+    assert r.flux_delay * t_fs == pytest.approx(4.68765, abs=6e-6)
+    assert r.spectral_delay * t_fs == pytest.approx(4.68765, abs=6e-6)
+    for E0 in (0.2, 0.28, 0.29):          # 0.28, 0.29: the threshold inside the band
+        p = predict(_hetero_step(E0, atomic))
+        got = [p.reflection.centroid_delay, p.reflection.flux_delay,
+               p.reflection.spectral_delay]
+        assert np.all(np.isfinite(got))
+        assert np.allclose(np.array(got) * t_fs, _step_top_quadrature(E0), rtol=1e-7, atol=0)

@@ -19,6 +19,7 @@ K_SPAN_AVERAGES = 8.0      # packet averages: k0 ± 8 σ_k (|ψ̃|² falls to 1e
 ABOVE_TOP_WARN = 1e-3      # warn when between this share and 1 − it lies above the top
 REFLECTION_MIN = 1e-14     # a packet R below this (relative) is no reflected packet
 TRANSMISSION_MIN = 1e-300  # a packet T below this is no transmitted packet
+FAINT = 1e-6               # an outgoing share below this is too faint to measure in a run
 
 
 def _number(v):
@@ -289,6 +290,10 @@ def packet_prediction(potential: Potential, packet: PacketInfo, *, hbar: float, 
             "transmission", s["T"] / Z, shift, shift / (hbar * kp0 / m) if open0 else None,
             s["flux_t"] / s["T"], s["spec_t"] / s["Zt"] if s["Zt"] > 0 else None,
             wig if math.isfinite(wig) else None)
+        if trans.probability < FAINT:
+            warnings.append(f"the packet's transmission probability {trans.probability:.2g} "
+                            f"is below {FAINT:g} (an opaque barrier): a run cannot measure the "
+                            "transmitted packet; its predictions are theory only")
     elif s["Zt"] > 0:
         warnings.append(f"the transmission channel is open but the packet's transmission "
                         f"probability ({s['T'] / Z:.2g}) is below {TRANSMISSION_MIN:g} (an "
