@@ -396,3 +396,31 @@ def test_share_above_the_top_warns_only_when_the_band_straddles_it():
     assert near.share_above_top == pytest.approx(0.5, abs=1e-12)
     text = [w for w in near.warnings if "above the barrier top" in w]
     assert text and f"{100 * near.share_above_top:.3g}% of the packet" in text[0]
+
+
+def test_a_zero_of_r_inside_the_band_is_named():
+    # above a rectangular barrier T = 1 where qa = nπ (Griffiths 2nd ed., Problem 2.33):
+    # V₀ = 1, a = 2, n = 1 gives E = 1 + π²/8 = 2.2337
+    V = pot(P.Barrier(start=0.0, end=2.0, height=1.0))
+    E_zero = 1 + np.pi ** 2 / 8
+    p = th.packet_prediction(V, _packet(E_zero, width=5.0), hbar=1.0, mass=1.0)
+    holes = [w for w in p.warnings if "zero of r" in w]
+    assert len(holes) == 1
+    assert float(holes[0].split("E = ")[1].split()[0]) == pytest.approx(E_zero, rel=2e-3)
+    # a step below its top reflects everything: no hole
+    step = th.packet_prediction(pot(P.Step(at=0.0, height=1.0)), _packet(0.5), hbar=1.0,
+                                mass=1.0)
+    assert not any("zero of r" in w for w in step.warnings)
+
+
+def test_transmission_above_a_step_has_no_delay():
+    # source: Griffiths 2nd ed., Problem 2.34: above a step t = 2k/(k + q) is real, so with
+    # r and t referenced at the step every transmission delay is 0 (unequal levels)
+    for height in (0.3, -0.3):
+        V = pot(P.Step(at=0.0, height=height))
+        p = th.packet_prediction(V, _packet(1.5 * abs(height) + max(height, 0)), hbar=1.0,
+                                 mass=1.0)
+        tr = p.transmission
+        for value in (tr.centroid_shift, tr.centroid_delay, tr.flux_delay, tr.spectral_delay,
+                      tr.wigner_delay):
+            assert abs(value) < 1e-12

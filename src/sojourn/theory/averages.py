@@ -19,6 +19,8 @@ K_SPAN_AVERAGES = 8.0      # packet averages: k0 ± 8 σ_k (|ψ̃|² falls to 1e
 ABOVE_TOP_WARN = 1e-3      # warn when between this share and 1 − it lies above the top
 REFLECTION_MIN = 1e-14     # a packet R below this (relative) is no reflected packet
 TRANSMISSION_MIN = 1e-300  # a packet T below this is no transmitted packet
+HOLE_DEPTH = 0.05          # a minimum of R below this share of its band maximum is a hole
+HOLE_WEIGHT = 1e-3         # ... where |ψ̃₀(k)|² is above this share of its peak
 FAINT = 1e-6               # an outgoing share below this is too faint to measure in a run
 
 
@@ -168,6 +170,18 @@ def _segment(a: float, b: float, lev: int, at_a: Optional[float], at_b: Optional
     return k, E, w * 2 * u
 
 
+def _reflection_holes(potential, hbar, reference, direction, E_of, k, weight):
+    """Energies inside the band where R(k) has a deep interior minimum (a zero of
+    r, e.g. qa = nπ above a barrier, or a transmission resonance): there the
+    reflected spectral phase is ill-conditioned."""
+    sc = scatter(potential, E_of(k), hbar=hbar, x_r=reference, direction=direction,
+                 dwell=False)
+    R = sc.R
+    inner = np.nonzero((R[1:-1] < R[:-2]) & (R[1:-1] < R[2:]))[0] + 1
+    deep = [i for i in inner if R[i] < HOLE_DEPTH * R.max() and weight[i] > HOLE_WEIGHT]
+    return [(float(sc.energy[i]), float(R[i])) for i in deep]
+
+
 def packet_prediction(potential: Potential, packet: PacketInfo, *, hbar: float, mass: float,
                       reference: Optional[float] = None,
                       region: Optional[tuple[float, float]] = None,
@@ -298,6 +312,14 @@ def packet_prediction(potential: Potential, packet: PacketInfo, *, hbar: float, 
         warnings.append(f"the transmission channel is open but the packet's transmission "
                         f"probability ({s['T'] / Z:.2g}) is below {TRANSMISSION_MIN:g} (an "
                         "opaque barrier): no transmission prediction")
+    if refl is not None:
+        kk = np.linspace(cuts[0], cuts[-1], 801)[1:-1]
+        wk = np.exp(-0.5 * ((kk - k0) / sk) ** 2)
+        for E_hole, R_hole in _reflection_holes(potential, hbar, reference, direction, E_of,
+                                                kk, wk):
+            warnings.append(f"R falls to {R_hole:.2g} at E = {E_hole:.6g} inside the packet's "
+                            "band (a zero of r): the reflected spectral phase is "
+                            "ill-conditioned there")
     top = _barrier_top(potential, hbar, level)
     share = share_above_top(top, level, k0, sk, hbar, m)
     excluded = float(ndtr((k_lo - k0) / sk) + ndtr(-(k_hi - k0) / sk))
