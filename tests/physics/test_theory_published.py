@@ -378,7 +378,7 @@ evolve: {{duration: 300.0}}
     run_packet = build(sc).packet
     level = 1.0 / (1.0 + np.exp(-x0 / a))
     assert run_packet.level == pytest.approx(level, rel=1e-12) and level > 0.04
-    p = predict(sc)
+    p = predict(sc, tol=1e-7)
     assert p.k0 == pytest.approx(run_packet.k0, rel=1e-15)
     assert p.energy0 == pytest.approx(run_packet.energy, rel=1e-15)
     sk = 1 / (2 * sigma)
