@@ -424,3 +424,19 @@ def test_transmission_above_a_step_has_no_delay():
         for value in (tr.centroid_shift, tr.centroid_delay, tr.flux_delay, tr.spectral_delay,
                       tr.wigner_delay):
             assert abs(value) < 1e-12
+
+
+def test_physics_entry_points_check_their_arguments():
+    V = pot(P.Step(at=0.0, height=1.0))
+    good = _packet(0.5)
+    for kwargs in (dict(hbar=0.0, mass=1.0), dict(hbar=1.0, mass=-1.0),
+                   dict(hbar=1.0, mass=1.0, region=(5.0, 0.0)),
+                   dict(hbar=1.0, mass=1.0, reference=float("nan"))):
+        with pytest.raises(TheoryError):
+            th.packet_prediction(V, good, **kwargs)
+    with pytest.raises(TheoryError, match="PacketInfo"):
+        th.packet_prediction(V, {"k0": 1.0}, hbar=1.0, mass=1.0)
+    with pytest.raises(TheoryError, match="PacketInfo"):
+        th.synthesize(V, None, [0.0], [0.0], hbar=1.0, mass=1.0)
+    with pytest.raises(TheoryError):
+        th.synthesize(V, good, [0.0], [0.0], hbar=1.0, mass=0.0)

@@ -203,6 +203,8 @@ def packet_prediction(potential: Potential, packet: PacketInfo, *, hbar: float, 
     quadrature split at the channel thresholds and refined until the averages
     change by less than `tol` (relative).
     """
+    if not isinstance(packet, PacketInfo):
+        raise TheoryError(f"packet must be a PacketInfo (got {type(packet).__name__})")
     check_positive(hbar=hbar, mass=mass, sigma_k=packet.sigma_k, tol=tol)
     if not (math.isfinite(packet.k0) and packet.k0 != 0 and math.isfinite(packet.level)):
         raise TheoryError(f"the packet's wavenumber must be finite and nonzero and its level "

@@ -61,6 +61,8 @@ def synthesize(potential: Potential, packet: PacketInfo, times, x, *, hbar: floa
     (period 2π/Δk in x) beyond 4× the region it explores during `times`.
     Exact for piecewise-constant potentials; smooth ones are sliced (``cells``).
     """
+    if not isinstance(packet, PacketInfo):
+        raise TheoryError(f"packet must be a PacketInfo (got {type(packet).__name__})")
     check_positive(hbar=hbar, mass=mass, width=packet.width)
     if not (math.isfinite(packet.k0) and packet.k0 != 0):
         raise TheoryError(f"the packet's wavenumber must be finite and nonzero (got {packet.k0!r})")
