@@ -6,8 +6,6 @@ import math
 from typing import NamedTuple, Optional
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 
 from ..build import default_region
 from ..errors import TheoryError
@@ -182,7 +180,11 @@ def format_table(table: dict) -> str:
 
 
 def plot_theory(table: dict, path) -> None:
-    """R, T and the delays against energy, with the packet's spectrum shaded."""
+    """R, T and the delays against energy, with the packet's spectrum shaded
+    (a Figure on its own Agg canvas: no pyplot state; matplotlib is loaded only
+    when a figure is asked for)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
 
     def arr(key):
         return np.array([np.nan if v is None else v for v in table[key]], dtype=float)
