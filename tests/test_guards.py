@@ -98,7 +98,7 @@ def test_a_table_wider_than_the_box_refers_to_where_V_leaves_its_level(tmp_path)
 
 
 def test_a_narrow_feature_in_a_formula_is_seen_by_the_theory():
-    from sojourn.theory.solver import scatter
+    from sojourn.theory import scatter
     text = BARRIER.replace("POINTS", "8192")
     formula = text.replace("barrier: {start: 0.0, end: 2.0, height: 1.0}",
                            'expression: "where(x > 0, 1, 0) * where(x < 0.3, 2.0, 0)"')

@@ -8,10 +8,14 @@ import numpy as np
 import pytest
 
 from sojourn.theory import closed_forms as cf
+from sojourn.theory import tables
 from sojourn.model import potentials as P
-from sojourn.theory import solver as th
+from sojourn import theory as th
+from sojourn.theory.layers import solve_layers
+from sojourn.errors import TheoryError
 from sojourn.cli import main
-from sojourn.config.scenario import loads
+from sojourn.config.scenario import PacketSpec, loads
+from sojourn.model.packets import describe
 from sojourn.errors import SojournError
 
 
@@ -101,14 +105,14 @@ def test_closed_channel_and_threshold():
 def test_energies_at_or_below_the_incidence_level_are_clear_errors():
     V = pot(P.Step(at=0.0, height=1.0))
     for bad in ([0.0], [-0.1], [0.5, float("nan")]):
-        with pytest.raises(th.TheoryError):
+        with pytest.raises(TheoryError):
             scatter(V, bad)
     with pytest.raises(SojournError, match="incident"):
         scatter(pot(P.Expression(formula="0.5 - 0.5*tanh(x)")), [0.2])   # left level 1
 
 
 def test_confining_potential_is_refused():
-    with pytest.raises(th.TheoryError, match="not a scattering potential"):
+    with pytest.raises(TheoryError, match="not a scattering potential"):
         scatter(pot(P.Harmonic(center=0.0, omega=0.1)), [1.0])
 
 
@@ -135,7 +139,7 @@ def test_incidence_from_the_right_is_the_mirrored_problem():
     left = scatter(V, E, direction="left")
     # the mirrored potential written by hand: level 0.3 left of −1, barrier 0.8 on [−1, 0]
     hand = th.Layers(np.array([-1.0, 0.0]), np.array([0.3, 0.8, 0.0]), np.zeros(2))
-    ref = th._regular_solve(hand, E, 1.0, 1.0, -1.0, 0.0, False)
+    ref = solve_layers(hand, E, 1.0, 1.0, -1.0, 0.0, False)
     assert left.x_r == 1.0 and left.x_t == 0.0
     assert np.allclose(left.r, ref.r, rtol=1e-13) and np.allclose(left.t, ref.t, rtol=1e-13)
     assert np.max(np.abs(left.R + left.T - 1)) < 1e-12
@@ -171,15 +175,55 @@ def test_stationary_state_far_field_has_the_stated_form():
     assert np.allclose(psi[:, 1], s.t * np.exp(1j * k * (x[1] - 2.0)))
 
 
+def _ode_dwell(layers, E, x_t):
+    """∫|ψ|² dx / k over the layers (ħ = m = 1), ψ integrated by scipy's solve_ivp
+    (DOP853) from ψ = e^{ik(x−x_t)} at x_t back to the entry, one layer at a time,
+    then divided by the incident amplitude: independent of the layer solver."""
+    from scipy.integrate import solve_ivp
+    k = np.sqrt(2 * E)
+    y = np.array([1.0 + 0j, 1j * k, 0.0 + 0j])
+    for a, b, V in reversed(layers):
+        def rhs(x, y):
+            return [y[1], 2 * (V - E) * y[0], abs(y[0]) ** 2]
+        y = solve_ivp(rhs, (b, a), y, method="DOP853", rtol=1e-12, atol=1e-14).y[:, -1]
+    incident = 0.5 * (y[0] + y[1] / (1j * k))
+    return float(-y[2].real) / abs(incident) ** 2 / k
+
+
 def test_dwell_time_equals_integral_of_the_stationary_state():
-    # Büttiker, Phys. Rev. B 27, 6178 (1983): τ_D = ∫|ψ|² dx over the region / (ħk/m)
+    # Büttiker, Phys. Rev. B 27, 6178 (1983): τ_D = ∫|ψ|² dx over the region / (ħk/m);
+    # ψ from scipy's ODE solver (independent), and the returned states agree with it
     V = pot(*CASES["double"])
     E = np.array([0.3, 0.9])
     s = scatter(V, E)
+    layers = [(0.0, 1.5, 1.0), (1.5, 4.0, 0.0), (4.0, 5.5, 1.0)]
+    for i, e in enumerate(E):
+        assert s.dwell[i] == pytest.approx(_ode_dwell(layers, e, 5.5), rel=1e-8)
     x = np.linspace(0.0, 5.5, 200001)
     psi = th.stationary_state(V, E, x, hbar=1.0)
     integral = np.trapezoid(np.abs(psi) ** 2, x, axis=1)
     assert np.allclose(s.dwell, integral / np.sqrt(2 * E), rtol=1e-8)
+
+
+def test_dwell_and_state_at_an_exact_inner_level():
+    # barrier V₀ = 0.5 on [0, a = 3], ħ = m = 1, E = V₀ (k = 1): ψ'' = 0 inside, so
+    # matching ψ = t e^{ik(x−a)} at a and e^{ikx} + r e^{−ikx} at 0 gives
+    # ψ = t(1 + ik(x−a)), t = 2/(2 − ika); ∫₀³|ψ|²dx / v = 12·|t|² = 12·4/13 (worked
+    # by hand; scipy.integrate.quad of |ψ|² checks the integral). Before: 3.0014.
+    from scipy.integrate import quad
+    a, k = 3.0, 1.0
+    t = 2 / (2 - 1j * k * a)
+    exact = quad(lambda x: abs(t * (1 + 1j * k * (x - a))) ** 2, 0.0, a, epsabs=0,
+                 epsrel=1e-13)[0] / k
+    assert exact == pytest.approx(12 * 4 / 13, rel=1e-12)
+    V = pot(P.Barrier(start=0.0, end=a, height=0.5))
+    s = scatter(V, [0.5])
+    assert s.dwell[0] == pytest.approx(exact, rel=1e-8)
+    assert s.T[0] == pytest.approx(abs(t) ** 2, rel=1e-12)
+    assert _ode_dwell([(0.0, a, 0.5)], 0.5, a) == pytest.approx(exact, rel=1e-8)
+    x = np.linspace(0.0, a, 13)
+    psi = th.stationary_state(V, [0.5], x, hbar=1.0)[0]
+    assert np.max(np.abs(psi - t * (1 + 1j * k * (x - a)))) < 1e-9
 
 
 def test_phase_unwrapping_follows_the_derivative():
@@ -229,8 +273,8 @@ evolve: {duration: 300.0}
 
 def test_theory_table_has_no_nan_and_none_where_undefined():
     sc = loads(STEP)
-    table = th.theory_table(sc, np.array([0.2, 0.5, 1.0, 1.5]))
-    for key in th.COLUMNS:
+    table = tables.theory_table(sc, np.array([0.2, 0.5, 1.0, 1.5]))
+    for key in tables.COLUMNS:
         assert len(table[key]) == 4
     assert table["delay_transmission"][:3] == [None, None, None]
     assert table["delay_reflection"][2] is None
@@ -242,16 +286,17 @@ def test_theory_table_has_no_nan_and_none_where_undefined():
 
 def test_default_energies_cover_the_packet_band_above_the_level():
     sc = loads(STEP)
-    E = th.default_energies(sc)
+    i = tables.scenario_inputs(sc)
+    E = tables.default_energies(i.packet, i.hbar, i.mass)
     k = np.sqrt(2 * E)
     assert E.min() > 0 and k.min() == pytest.approx(1 - 4 / 40) and k.max() == pytest.approx(1.1)
 
 
 def test_parse_energies():
-    assert np.allclose(th.parse_energies("0.1:0.5:5"), [0.1, 0.2, 0.3, 0.4, 0.5])
+    assert np.allclose(tables.parse_energies("0.1:0.5:5"), [0.1, 0.2, 0.3, 0.4, 0.5])
     for bad in ("1:2", "a:b:3", "0:1:0", "0:inf:3"):
-        with pytest.raises(th.TheoryError):
-            th.parse_energies(bad)
+        with pytest.raises(TheoryError):
+            tables.parse_energies(bad)
 
 
 def test_cli_theory_json_csv_plain_and_plot(tmp_path, capsys):
@@ -280,3 +325,119 @@ def test_cli_theory_bad_input_is_one_line_exit_2(tmp_path, capsys):
     harmonic.write_text(STEP.replace("step: {at: 0.0, height: 1.0}", "harmonic: {omega: 0.1}"))
     assert main(["theory", str(harmonic)]) == 2
     assert "not a scattering potential" in capsys.readouterr().err
+
+
+def test_json_is_strict_where_a_number_is_missing(tmp_path, capsys):
+    # RFC 8259 has no NaN: a missing number is null
+    pred = th.ChannelPrediction("transmission", 0.5, float("nan"), None, float("inf"), 1.0, None)
+    assert pred.as_dict()["centroid_shift"] is None and pred.as_dict()["flux_delay"] is None
+    path = tmp_path / "hetero.yaml"
+    path.write_text(STEP.replace("units: atomic", "units: lab\nmass: 0.067").replace(
+        "height: 1.0", "height: 0.3").replace("energy: 0.5", "energy: 0.29"))
+    assert main(["theory", str(path), "--json"]) == 0
+
+    def refuse(name):
+        raise AssertionError(f"bare {name} in the JSON output")
+    data = json.loads(capsys.readouterr().out, parse_constant=refuse)
+    assert data["packet"]["reflection"]["flux_delay"] is not None
+
+
+def test_theory_and_the_run_use_one_dwell_region():
+    # the region rule of build.default_region: below the step top it reaches to the box
+    # edge, so the packet dwell is the evanescent penetration. Closed form (Büttiker,
+    # Phys. Rev. B 27, 6178 (1983), with the step state of Griffiths 2nd ed., Problem 2.34,
+    # ħ = m = V₀ = 1): τ_D(k) = |t|²(1 − e^{−2κL})/(2κk), |t|² = 4k²/(k² + κ²) = 2k²,
+    # averaged with scipy.integrate.quad over the packet's |ψ̃₀(k)|²
+    from scipy.integrate import quad
+    from sojourn.build import build
+    sc = loads(STEP)
+    table = tables.theory_table(sc, np.array([0.5]))
+    assert table["dwell_region"] == list(build(sc).region) == [0.0, 600.0]
+    k0, sk, L = 1.0, 1 / 40, 600.0
+    g = lambda k: np.exp(-0.5 * ((k - k0) / sk) ** 2)
+    kappa = lambda k: np.sqrt(2 - k * k)
+    tau = lambda k: 2 * k * k * -np.expm1(-2 * kappa(k) * L) / (2 * kappa(k) * k)
+    lo, hi = k0 - 8 * sk, k0 + 8 * sk
+    expected = quad(lambda k: g(k) * tau(k), lo, hi, epsrel=1e-12)[0] / quad(g, lo, hi)[0]
+    assert table["packet"]["dwell"] == pytest.approx(expected, rel=1e-8)
+    assert table["dwell"][0] == pytest.approx(tau(1.0), rel=1e-10)
+
+
+def _packet(E0, center=-200.0, width=20.0, level=0.0):
+    """The PacketInfo a run makes of this packet (ħ = m = 1)."""
+    return describe(PacketSpec(center=center, width=width, energy=E0), 1.0, 1.0, level)
+
+
+def test_opaque_barrier_says_why_its_transmission_is_left_out():
+    # T ~ 16E(V₀−E)/V₀² e^{−2κa} (Griffiths 2nd ed., Problem 2.33, opaque limit): with
+    # κa = 20 the packet T (~1e-17) is far below what a run can measure; with κa = 1000 it
+    # is below the smallest float
+    V = pot(P.Barrier(start=0.0, end=20.0, height=1.0))
+    p = th.packet_prediction(V, _packet(0.5), hbar=1.0, mass=1.0)
+    T0 = 16 * 0.5 * 0.5 * np.exp(-2 * 20.0)
+    assert 0.1 * T0 < p.transmission.probability < 10 * T0
+    assert any("opaque barrier" in w and "cannot measure" in w for w in p.warnings)
+    V = pot(P.Barrier(start=0.0, end=1000.0, height=1.0))
+    p = th.packet_prediction(V, _packet(0.5), hbar=1.0, mass=1.0)
+    assert p.transmission is None and p.reflection.probability == pytest.approx(1, abs=1e-12)
+    assert any("opaque barrier" in w and "no transmission prediction" in w for w in p.warnings)
+    # a step below its top has no open channel at all: nothing to explain
+    step = th.packet_prediction(pot(P.Step(at=0.0, height=1.0)), _packet(0.5), hbar=1.0,
+                                mass=1.0)
+    assert step.transmission is None and step.warnings == ()
+
+
+def test_share_above_the_top_warns_only_when_the_band_straddles_it():
+    # share = ½ erfc((k_top − k₀)/(√2σ_k)) of the Gaussian |ψ̃₀(k)|² (common practice)
+    V = pot(P.Barrier(start=0.0, end=2.0, height=1.0))
+    far = th.packet_prediction(V, _packet(1.5), hbar=1.0, mass=1.0)
+    assert far.share_above_top == pytest.approx(1.0, abs=1e-12)
+    assert not any("above the barrier top" in w for w in far.warnings)
+    near = th.packet_prediction(V, _packet(1.0), hbar=1.0, mass=1.0)   # k₀ = k_top
+    assert near.share_above_top == pytest.approx(0.5, abs=1e-12)
+    text = [w for w in near.warnings if "above the barrier top" in w]
+    assert text and f"{100 * near.share_above_top:.3g}% of the packet" in text[0]
+
+
+def test_a_zero_of_r_inside_the_band_is_named():
+    # above a rectangular barrier T = 1 where qa = nπ (Griffiths 2nd ed., Problem 2.33):
+    # V₀ = 1, a = 2, n = 1 gives E = 1 + π²/8 = 2.2337
+    V = pot(P.Barrier(start=0.0, end=2.0, height=1.0))
+    E_zero = 1 + np.pi ** 2 / 8
+    p = th.packet_prediction(V, _packet(E_zero, width=5.0), hbar=1.0, mass=1.0)
+    holes = [w for w in p.warnings if "zero of r" in w]
+    assert len(holes) == 1
+    assert float(holes[0].split("E = ")[1].split()[0]) == pytest.approx(E_zero, rel=2e-3)
+    # a step below its top reflects everything: no hole
+    step = th.packet_prediction(pot(P.Step(at=0.0, height=1.0)), _packet(0.5), hbar=1.0,
+                                mass=1.0)
+    assert not any("zero of r" in w for w in step.warnings)
+
+
+def test_transmission_above_a_step_has_no_delay():
+    # source: Griffiths 2nd ed., Problem 2.34: above a step t = 2k/(k + q) is real, so with
+    # r and t referenced at the step every transmission delay is 0 (unequal levels)
+    for height in (0.3, -0.3):
+        V = pot(P.Step(at=0.0, height=height))
+        p = th.packet_prediction(V, _packet(1.5 * abs(height) + max(height, 0)), hbar=1.0,
+                                 mass=1.0)
+        tr = p.transmission
+        for value in (tr.centroid_shift, tr.centroid_delay, tr.flux_delay, tr.spectral_delay,
+                      tr.wigner_delay):
+            assert abs(value) < 1e-12
+
+
+def test_physics_entry_points_check_their_arguments():
+    V = pot(P.Step(at=0.0, height=1.0))
+    good = _packet(0.5)
+    for kwargs in (dict(hbar=0.0, mass=1.0), dict(hbar=1.0, mass=-1.0),
+                   dict(hbar=1.0, mass=1.0, region=(5.0, 0.0)),
+                   dict(hbar=1.0, mass=1.0, reference=float("nan"))):
+        with pytest.raises(TheoryError):
+            th.packet_prediction(V, good, **kwargs)
+    with pytest.raises(TheoryError, match="PacketInfo"):
+        th.packet_prediction(V, {"k0": 1.0}, hbar=1.0, mass=1.0)
+    with pytest.raises(TheoryError, match="PacketInfo"):
+        th.synthesize(V, None, [0.0], [0.0], hbar=1.0, mass=1.0)
+    with pytest.raises(TheoryError):
+        th.synthesize(V, good, [0.0], [0.0], hbar=1.0, mass=0.0)

@@ -92,7 +92,7 @@ def _default_detectors(potential, packet, grid, reference, absorber_width):
     return out
 
 
-def _default_region(potential, grid, absorber_width, packet):
+def default_region(potential, grid, absorber_width, packet):
     """The potential's support; beyond a step the packet cannot cross (the far
     level above its whole band) the region reaches to that side's absorber, so
     the dwell time counts the evanescent penetration."""
@@ -205,7 +205,7 @@ def _build(scenario: Scenario) -> Setup:
         reference = support[0] if info.k0 >= 0 else support[1]
     else:
         reference = 0.0
-    region = tuple(scenario.measure.region) if scenario.measure.region else _default_region(
+    region = tuple(scenario.measure.region) if scenario.measure.region else default_region(
         potential, grid, absorber_width, info)
     detectors = list(scenario.measure.detectors) if scenario.measure.detectors is not None \
         else _default_detectors(potential, info, grid, reference, absorber_width)

@@ -364,7 +364,7 @@ DEMO_STEPS.append(demo_delay)
 
 
 def cmd_theory(args) -> int:
-    from .theory import solver as theory
+    from .theory import tables as theory
     from .config.scenario import load
     scenario = load(args.scenario)
     if args.synthesize:

@@ -15,7 +15,7 @@ from .errors import ScenarioError, SojournError
 from .model import packets
 from .model.potentials import Potential
 from .model.terms import Step
-from .theory.solver import scatter
+from .theory.scattering import scatter
 from .store.paths import output_path
 
 STATE_COPIES = 8          # complex arrays of N the propagator and the recorder hold

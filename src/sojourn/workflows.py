@@ -22,7 +22,7 @@ from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
 from .measure.core import DelayReport, measure_delays
 from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
-from .theory.solver import synthesize as synthesize_states
+from .theory.states import synthesize as synthesize_states
 
 SAFETY = 1.25   # factor on the Richardson estimate (grid convergence index, Roache 1994)
 
@@ -96,6 +96,10 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
                       else set()))
     nodes = np.array(nodes, dtype=int)
     recordings = list(range(0, setup.steps, setup.record_steps)) + [setup.steps]
+
+    def exact(times, x):
+        return synthesize_states(setup.potential, setup.packet, times, x, hbar=setup.hbar,
+                                 mass=setup.mass, reference=setup.reference)
     try:
         previous = None
         for step in recordings:
@@ -105,11 +109,11 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
                 range(previous + setup.sample_steps, step + 1, setup.sample_steps))
             times = np.array(sampled, dtype=float) * setup.dt
             full = np.zeros(g.points, complex)
-            for tk, values in zip(times, synthesize_states(sc, times, x=g.x[nodes])):
+            for tk, values in zip(times, exact(times, g.x[nodes])):
                 full[nodes] = values
                 sampler.take(full, float(tk))
                 sampler.norm[-1] = 1.0
-            psi = synthesize_states(sc, [step * setup.dt], x=g.x)[0]
+            psi = exact([step * setup.dt], g.x)[0]
             writer.snapshot(step, step * setup.dt, psi, sampler.recording(psi, setup),
                             sampler.batch(), (0.0, 0.0))
             if progress:

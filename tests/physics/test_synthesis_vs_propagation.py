@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 
-from sojourn.theory import solver as theory
+from sojourn.theory import synthesize
 from sojourn.build import build
 from sojourn.engine.propagate import Propagator
 from sojourn.config.scenario import loads
@@ -32,7 +32,8 @@ def l2_error(points, dt, box, potential, shift_cells=0.5):
     prop = Propagator(setup.grid, setup.V, 1.0, 1.0, setup.dt)
     prop.set_state(setup.psi0())
     prop.advance(setup.steps)
-    exact = theory.synthesize(scenario, [T_END], x=setup.grid.x)[0]
+    exact = synthesize(setup.potential, setup.packet, [T_END], setup.grid.x, hbar=setup.hbar,
+                       mass=setup.mass, reference=setup.reference)[0]
     return math.sqrt(np.sum(np.abs(prop.psi - exact) ** 2) * setup.grid.dx)
 
 

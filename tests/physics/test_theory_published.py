@@ -9,9 +9,22 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import brentq, minimize_scalar
 
 from sojourn.theory import closed_forms as cf
+from sojourn.theory import tables
 from sojourn.model import potentials as P
-from sojourn.theory import solver as th
+from sojourn import theory as th
 from sojourn.config.scenario import loads
+
+
+def predict(sc, **kw):
+    """packet_prediction with the numbers a run of `sc` uses."""
+    i = tables.scenario_inputs(sc)
+    return th.packet_prediction(i.potential, i.packet, hbar=i.hbar, mass=i.mass,
+                                reference=i.reference, region=i.region, **kw)
+
+
+def scatter_sc(sc, E):
+    """scatter with the scenario's ħ, potential and packet direction."""
+    return th.scatter(sc.build_potential(), E, hbar=sc.hbar, direction=sc.packet.direction)
 
 
 def pot(*terms, mass=1.0):
@@ -270,7 +283,7 @@ evolve: {{duration: 300.0}}
 def test_packet_predictions_agree_at_half_the_step_height():
     # source: PHYSICS §5 (unit step, σ = 20): the three averages agree to 2e-6 at
     # E₀ = V₀/2, ⟨dφ/dk⟩/v₀ = 2.00252, Wigner 2.0
-    p = th.packet_prediction(_step_scenario(0.5))
+    p = predict(_step_scenario(0.5))
     r = p.reflection
     assert r.centroid_delay == pytest.approx(2.00252, abs=5e-6)
     assert r.wigner_delay == pytest.approx(2.0, rel=1e-12)
@@ -283,7 +296,7 @@ def test_packet_predictions_agree_at_half_the_step_height():
 def test_packet_predictions_differ_away_from_the_minimum(E0, spread):
     # source: PHYSICS §5: at 0.2 V₀ and 0.8 V₀ the averages differ by ~1.2e-3, at 0.1 V₀
     # by 2.8e-3 (ħ = m = V₀ = 1, σ = 20); the sign follows dτ/dE
-    r = th.packet_prediction(_step_scenario(E0)).reflection
+    r = predict(_step_scenario(E0)).reflection
     rel = (r.centroid_delay - r.flux_delay) / r.flux_delay
     assert abs(rel) == pytest.approx(spread, rel=0.1)
     assert np.sign(rel) == (1 if E0 > 0.5 else -1)
@@ -293,7 +306,7 @@ def test_packet_predictions_differ_away_from_the_minimum(E0, spread):
 def test_packet_prediction_first_order_bandwidth_correction():
     # common practice, no source: to first order in σ_k², centroid − flux = (dτ/dk)σ_k²/k₀
     E0 = 0.2
-    p = th.packet_prediction(_step_scenario(E0))
+    p = predict(_step_scenario(E0))
     k0, sk = p.k0, p.sigma_k
     dk = 1e-4
     tau = cf.step_delay(np.array([(k0 - dk) ** 2 / 2, (k0 + dk) ** 2 / 2]), 1.0)
@@ -332,12 +345,125 @@ packet: {{center: {-250 / a0_nm}, width: {20 / a0_nm}, energy: {0.08 / Eh_eV}}}
 evolve: {{duration: 100.0}}
 """)
     E_lab = np.array([0.05, 0.08, 0.12, 0.2])
-    s_lab = th.scatter_scenario(lab, E_lab)
-    s_at = th.scatter_scenario(atomic, E_lab / Eh_eV)
+    s_lab = scatter_sc(lab, E_lab)
+    s_at = scatter_sc(atomic, E_lab / Eh_eV)
     assert np.allclose(s_lab.T, s_at.T, rtol=1e-9)
     assert np.allclose(s_lab.delay_transmission, s_at.delay_transmission * t_fs, rtol=1e-9)
     assert np.allclose(s_lab.dwell, s_at.dwell * t_fs, rtol=1e-9)
-    p_lab, p_at = th.packet_prediction(lab), th.packet_prediction(atomic)
+    p_lab, p_at = predict(lab), predict(atomic)
     assert p_lab.reflection.flux_delay == pytest.approx(p_at.reflection.flux_delay * t_fs, rel=1e-8)
     assert p_lab.transmission.probability == pytest.approx(p_at.transmission.probability,
                                                            rel=1e-8)
+
+
+# ---------------------------------------------------------------------------------------
+# the run's own packet
+
+
+def test_prediction_uses_the_runs_k0_where_the_packet_starts_on_a_slope():
+    # source: Landau & Lifshitz, QM, §25, problems: R of the Fermi step above its top,
+    # [sinh(πa(k−q))/sinh(πa(k+q))]² (closed_forms.fermi_step_reflection_probability),
+    # averaged by scipy.integrate.quad over the packet's |ψ̃₀(k)|² with E(k) = V(x₀) + k²/2,
+    # the energies of the packet the run starts (k₀ given, V(x₀) ≈ 0.05, not the left level 0)
+    from scipy.integrate import quad
+    from sojourn.build import build
+    a, x0, k0, sigma = 0.5, -1.4722, 1.8, 20.0
+    sc = loads(f"""
+units: atomic
+grid: {{span: [-600.0, 600.0], points: 4096}}
+potential:
+  - smooth_step: {{at: 0.0, height: 1.0, width: {a}}}
+packet: {{center: {x0}, width: {sigma}, wavenumber: {k0}}}
+evolve: {{duration: 300.0}}
+""")
+    run_packet = build(sc).packet
+    level = 1.0 / (1.0 + np.exp(-x0 / a))
+    assert run_packet.level == pytest.approx(level, rel=1e-12) and level > 0.04
+    p = predict(sc, tol=1e-7)
+    assert p.k0 == pytest.approx(run_packet.k0, rel=1e-15)
+    assert p.energy0 == pytest.approx(run_packet.energy, rel=1e-15)
+    sk = 1 / (2 * sigma)
+
+    def average(lev):
+        g = lambda k: np.exp(-0.5 * ((k - k0) / sk) ** 2)
+        R = lambda k: g(k) * float(cf.fermi_step_reflection_probability(lev + k * k / 2, 1.0, a))
+        lo, hi = k0 - 10 * sk, k0 + 10 * sk
+        return (quad(R, lo, hi, epsabs=0, epsrel=1e-12, limit=200)[0]
+                / quad(g, lo, hi, epsabs=0, epsrel=1e-12)[0])
+
+    expected = average(level)
+    assert p.reflection.probability == pytest.approx(expected, rel=1e-6)
+    # the incidence-side level (the old convention) gives a clearly different number
+    assert abs(average(0.0) / expected - 1) > 0.1
+
+
+# ---------------------------------------------------------------------------------------
+# a packet whose band reaches the step top, in lab and in atomic units
+
+HBAR_EV_FS = C.hbar / C.e * 1e15                       # CODATA via scipy.constants
+ME_EV_FS2_NM2 = C.m_e / C.e * 1e12                      # m_e in eV fs²/nm²
+
+
+def _hetero_step(E0, atomic=False):
+    """The hetero step (m = 0.067, V₀ = 0.3 eV, σ = 25 nm; E₀ in eV) in lab or atomic units."""
+    a0_nm = C.physical_constants["Bohr radius"][0] * 1e9
+    Eh_eV = C.physical_constants["Hartree energy in eV"][0]
+    L, E = (1 / a0_nm, 1 / Eh_eV) if atomic else (1.0, 1.0)
+    return loads(f"""
+units: {'atomic' if atomic else 'lab'}
+mass: 0.067
+grid: {{span: [{-1500 * L}, {500 * L}], points: 4096}}
+potential:
+  - step: {{at: 0.0, height: {0.3 * E}}}
+packet: {{center: {-500 * L}, width: {25 * L}, energy: {E0 * E}}}
+evolve: {{duration: 100.0}}
+""")
+
+
+def _step_top_quadrature(E0, V0=0.3, m_eff=0.067, sigma=25.0):
+    """(centroid, flux, spectral) reflection delays in fs by scipy.integrate.quad, from
+    the closed-form step amplitude (Griffiths 2nd ed., Problem 2.34: τ_R = ħ/√(E(V₀−E))
+    below the top, r = (k−q)/(k+q) real above it); the (k_th − k)^(−1/2) end is
+    integrated by QUADPACK's algebraic weight."""
+    from scipy.integrate import quad
+    hbar, m = HBAR_EV_FS, m_eff * ME_EV_FS2_NM2
+    c = hbar ** 2 / (2 * m)
+    k0, sk = np.sqrt(E0 / c), 1 / (2 * sigma)
+    k_th = np.sqrt(V0 / c)
+    lo, hi = max(k0 - 8 * sk, k0 / 100), k0 + 8 * sk
+    g = lambda k: np.exp(-0.5 * ((k - k0) / sk) ** 2)
+    R_above = lambda k: ((k - np.sqrt(k * k - k_th ** 2)) / (k + np.sqrt(k * k - k_th ** 2))) ** 2
+    tau_root = lambda k: hbar / np.sqrt(c * k * k * c * (k_th + k))   # τ·√(k_th − k)
+    opts = dict(epsabs=0, epsrel=1e-12, limit=200)
+    top = min(hi, k_th)
+
+    def below(f):    # ∫_lo^top f(k) τ(k) dk with the singular end at k_th
+        if top < k_th:
+            return quad(lambda k: f(k) * tau_root(k) / np.sqrt(k_th - k), lo, top, **opts)[0]
+        return quad(lambda k: f(k) * tau_root(k), lo, k_th, weight="alg", wvar=(0, -0.5),
+                    **opts)[0]
+
+    Z = quad(g, lo, hi, **opts)[0]
+    P_R = quad(g, lo, top, **opts)[0] + (quad(lambda k: g(k) * R_above(k), k_th, hi, **opts)[0]
+                                         if hi > k_th else 0.0)
+    flux = below(g) / P_R                       # R = 1 wherever τ ≠ 0
+    shift = below(lambda k: g(k) * hbar * k / m) / P_R
+    return shift / (hbar * k0 / m), flux, below(g) / Z
+
+
+@pytest.mark.parametrize("atomic", [False, True])
+def test_band_touching_the_step_top_gives_finite_delays_in_both_unit_systems(atomic):
+    # reference values from an independent quadrature (an external audit): E₀ = 0.2 eV →
+    # centroid 4.69335 fs, arrival = spectral 4.68765 fs; m = 0.067, V₀ = 0.3 eV, σ = 25 nm.
+    # This code gave NaN here in lab units (a node rounded to E = V₀).
+    t_fs = C.physical_constants["atomic unit of time"][0] * 1e15 if atomic else 1.0
+    r = predict(_hetero_step(0.2, atomic)).reflection
+    assert r.centroid_delay * t_fs == pytest.approx(4.69335, abs=6e-6)
+    assert r.flux_delay * t_fs == pytest.approx(4.68765, abs=6e-6)
+    assert r.spectral_delay * t_fs == pytest.approx(4.68765, abs=6e-6)
+    for E0 in (0.2, 0.28, 0.29):          # 0.28, 0.29: the threshold inside the band
+        p = predict(_hetero_step(E0, atomic))
+        got = [p.reflection.centroid_delay, p.reflection.flux_delay,
+               p.reflection.spectral_delay]
+        assert np.all(np.isfinite(got))
+        assert np.allclose(np.array(got) * t_fs, _step_top_quadrature(E0), rtol=1e-7, atol=0)

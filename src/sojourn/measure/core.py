@@ -41,8 +41,8 @@ import numpy as np
 
 from ..model import packets
 from ..store import RunFile, RunReader
-from ..config.scenario import with_changes
 from ..errors import SojournError, RunFileError, MeasureError
+from ..theory.averages import packet_prediction
 
 METHODS = ("centroid", "arrival", "spectral")
 SEPARATION = 6.0        # widths between the outgoing packet and the potential / box edge
@@ -529,15 +529,14 @@ def _reference_run_flux(run, ref, channel, xd, times, warnings):
 # Theory side
 
 
-def predictions(scenario, reference: float, region):
-    """The theory's packet-averaged predictions for the run's reference point
-    and dwell region (None, and the reason, if theory cannot treat it)."""
-    from ..theory import solver as theory
-    changes = {"measure.reference": float(reference)}
-    if region is not None:
-        changes["measure.region"] = [float(region[0]), float(region[1])]
+def predictions(potential, packet: packets.PacketInfo, hbar: float, mass: float,
+                reference: float, region):
+    """The theory's packet-averaged predictions for the run's own packet,
+    reference point and dwell region (None, and the reason, if theory cannot
+    treat it)."""
     try:
-        return theory.packet_prediction(with_changes(scenario, changes)), None
+        return packet_prediction(potential, packet, hbar=hbar, mass=mass,
+                                 reference=float(reference), region=region), None
     except SojournError as exc:
         return None, str(exc)
 
@@ -597,7 +596,8 @@ def _measure(run: _Run, ref: Optional[_Run]) -> DelayReport:
     if transmitted > CHANNEL_MIN:
         transmission = _measure_channel(run, stats, "transmission", warnings, ref)
 
-    prediction, why = predictions(run.scenario, rf.reference, run.region)
+    prediction, why = predictions(run.scenario.build_potential(), packets.PacketInfo(**rf.packet),
+                                  run.hbar, run.mass, rf.reference, run.region)
     if prediction is None:
         warnings.append(f"no theory prediction: {why}")
     else:

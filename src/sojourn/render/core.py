@@ -25,6 +25,7 @@ import numpy as np
 from ..model.packets import PacketInfo, free_evolution
 from ..store import RunFile
 from ..errors import SojournError, RenderError
+from ..theory.scattering import scatter
 
 CURVES = ("density", "real", "imag", "phase", "reference", "potential")
 DEFAULT_CURVES = ("density", "reference", "potential")
@@ -640,14 +641,15 @@ def _channels(analysis: dict) -> list[tuple[str, dict]]:
 
 
 def theory_delays(facts: RunFacts, energies: np.ndarray) -> dict:
-    """τ_R(E), τ_T(E) of stationary scattering (`theory.scatter_scenario`, r
+    """τ_R(E), τ_T(E) of stationary scattering (`theory.scatter`, r
     referenced at the run's mirror point) for the run's scenario; {} when the
     theory cannot say (the potential outside its reach)."""
     if facts.scenario is None:
         return {}
-    from ..theory import solver as theory
     try:
-        result = theory.scatter_scenario(facts.scenario, energies, x_r=facts.reference)
+        result = scatter(facts.scenario.build_potential(), energies, hbar=facts.hbar,
+                         x_r=facts.reference, dwell=False,
+                         direction="right" if facts.packet.k0 >= 0 else "left")
     except (SojournError, ValueError, ArithmeticError):
         return {}
     out = {}

@@ -39,6 +39,7 @@ from .. import workflows
 from ..build import build
 from ..errors import RunFileError, SojournError, SweepError, one_line
 from ..store import RunFile, folder_lock
+from ..theory.scattering import scatter
 
 SWEEP_KEYS = ("base", "vary", "pairing", "output")
 PAIRINGS = ("product", "zip")
@@ -641,13 +642,13 @@ def _label(value) -> str:
 def _theory_curve(scenario: Scenario, channel: str, energies):
     """(E, τ(E)) of the stationary theory over the range of the swept energies."""
     import numpy as np
-    from ..theory import solver as theory
     finite = energies[np.isfinite(energies)]
     if finite.size < 1 or scenario is None:
         return None
     E = np.linspace(float(finite.min()), float(finite.max()), 400)
     try:
-        sc = theory.scatter_scenario(scenario, E)
+        sc = scatter(scenario.build_potential(), E, hbar=scenario.hbar, dwell=False,
+                     x_r=scenario.measure.reference, direction=scenario.packet.direction)
     except SojournError:
         return None
     tau = sc.delay_reflection if channel == "reflection" else sc.delay_transmission

@@ -1,5 +1,5 @@
 """Published closed forms for 1D stationary scattering, kept apart from the
-general solver in `theory.py` so that each can check the other.
+general solver (`scattering`, `layers`) so that each can check the other.
 
 All functions take total energies E (arrays allowed), ħ and the mass m in one
 consistent unit set, and follow the conventions of PHYSICS §4: incidence from

@@ -1,0 +1,217 @@
+"""The command-line edge of the theory: a Scenario turned into the numbers the
+physics functions take, tables (JSON-ready, CSV, plain text) and a figure."""
+from __future__ import annotations
+
+import math
+from typing import NamedTuple, Optional
+
+import numpy as np
+
+from ..build import default_region
+from ..errors import TheoryError
+from ..model.grid import Grid
+from ..model.packets import PacketInfo, describe
+from ..model.potentials import Potential
+from .averages import packet_prediction
+from .layers import check_scattering
+from .scattering import scatter
+
+
+class TheoryInputs(NamedTuple):
+    """What the physics functions take, read off a scenario the way a run does."""
+
+    potential: Potential
+    packet: PacketInfo
+    hbar: float
+    mass: float
+    reference: Optional[float]
+    region: Optional[tuple[float, float]]
+
+
+def scenario_inputs(scenario) -> TheoryInputs:
+    """The potential, the packet as the run describes it (k₀ from V at the
+    packet's centre), ħ, m, ``measure.reference`` and the dwell region by the
+    run's own rule (``measure.region``, else `build.default_region`)."""
+    potential = scenario.build_potential()
+    check_scattering(potential)
+    hbar, mass = scenario.hbar, scenario.particle_mass
+    level = float(potential(np.array([scenario.packet.center]))[0])
+    try:
+        packet = describe(scenario.packet, hbar, mass, level)
+    except ValueError as exc:
+        raise TheoryError(f"packet.energy: {exc}") from None
+    if scenario.measure.region is not None:
+        region = tuple(float(v) for v in scenario.measure.region)
+    else:
+        width = scenario.absorber.width if scenario.absorber is not None else 0.0
+        region = default_region(potential, Grid.from_spec(scenario.grid), width, packet)
+    return TheoryInputs(potential, packet, hbar, mass, scenario.measure.reference, region)
+
+
+def default_energies(packet: PacketInfo, hbar: float, mass: float, n: int = 201,
+                     floor: Optional[float] = None) -> np.ndarray:
+    """Energies level + ħ²k²/2m for k in |k₀| ± 4σ_k (k kept above |k₀|/100 and,
+    with `floor`, the energies above it): the packet's spectrum."""
+    k0, sk = abs(packet.k0), packet.sigma_k
+    c = hbar ** 2 / (2 * mass)
+    k_lo = max(k0 - 4 * sk, k0 / 100)
+    if floor is not None and floor > packet.level:
+        k_lo = max(k_lo, math.sqrt((floor - packet.level) / c) * (1 + 1e-9))
+    k = np.linspace(k_lo, k0 + 4 * sk, n)
+    return packet.level + c * k ** 2
+
+
+def parse_energies(text: str) -> np.ndarray:
+    """'A:B:N' → N energies from A to B (inclusive)."""
+    parts = str(text).split(":")
+    try:
+        if len(parts) != 3:
+            raise ValueError
+        a, b, n = float(parts[0]), float(parts[1]), int(parts[2])
+    except ValueError:
+        raise TheoryError(f"--energies must look like A:B:N (two numbers and a count), "
+                          f"got {text!r}") from None
+    if n < 1 or not (math.isfinite(a) and math.isfinite(b)):
+        raise TheoryError(f"--energies: need finite A, B and N >= 1 (got {text!r})")
+    if n > 1_000_000:
+        raise TheoryError(f"--energies: N = {n} is too many points (at most 1000000)")
+    return np.linspace(a, b, n) if n > 1 else np.array([a])
+
+
+def _clean(values) -> list:
+    return [None if (v is None or not math.isfinite(float(v))) else float(v) for v in values]
+
+
+def theory_table(scenario, energies=None, *, packet: bool = True) -> dict:
+    """Everything `sojourn theory` reports, JSON-ready (None where undefined).
+
+    Arrays: energy, R, T, phase_reflection, phase_transmission,
+    delay_reflection, delay_transmission, dwell; plus units, reference_points,
+    levels, the dwell region and (unless ``packet=False``) the packet-averaged
+    predictions. The packet, reference and region are those a run of the
+    scenario uses (`scenario_inputs`).
+    """
+    inputs = scenario_inputs(scenario)
+    pot, info = inputs.potential, inputs.packet
+    direction = "right" if info.k0 > 0 else "left"
+    incidence = pot.levels()[0 if direction == "right" else 1]
+    E = (default_energies(info, inputs.hbar, inputs.mass, floor=incidence)
+         if energies is None else np.asarray(energies, dtype=float))
+    sc = scatter(pot, E, hbar=inputs.hbar, x_r=inputs.reference, direction=direction,
+                 dwell=inputs.region is not None, dwell_region=inputs.region)
+    opn = sc.open
+    units = scenario.unit_system
+    phase_t = np.where(opn, sc.phase_transmission, np.nan)
+    phase_r = np.where(np.abs(sc.r) > 0, sc.phase_reflection, np.nan)
+    table = {
+        "scenario": scenario.title,
+        "units": {"length": units.length, "energy": units.energy, "time": units.time,
+                  "mass": units.mass, "phase": "rad", "system": units.name},
+        "direction": sc.direction,
+        "levels": _clean(pot.levels()),
+        "reference_points": {"x_r": sc.x_r, "x_t": sc.x_t},
+        "dwell_region": _clean(inputs.region) if inputs.region else None,
+        "energy": _clean(sc.energy),
+        "R": _clean(sc.R),
+        "T": _clean(sc.T),
+        "phase_reflection": _clean(phase_r),
+        "phase_transmission": _clean(phase_t),
+        "delay_reflection": _clean(sc.delay_reflection),
+        "delay_transmission": _clean(sc.delay_transmission),
+        "dwell": _clean(sc.dwell) if sc.dwell is not None else [None] * len(sc.energy),
+    }
+    if packet:
+        pred = packet_prediction(pot, info, hbar=inputs.hbar, mass=inputs.mass,
+                                 reference=inputs.reference, region=inputs.region)
+        table["packet"] = pred.as_dict()
+        k = np.linspace(pred.k_range[0], pred.k_range[1], 201)
+        table["packet_spectrum"] = {
+            "energy": _clean(info.level + (inputs.hbar * k) ** 2 / (2 * inputs.mass)),
+            "weight_dk": _clean(np.exp(-0.5 * ((k - pred.k0) / pred.sigma_k) ** 2)),
+        }
+    return table
+
+
+COLUMNS = ("energy", "R", "T", "phase_reflection", "phase_transmission",
+           "delay_reflection", "delay_transmission", "dwell")
+
+
+def table_csv(table: dict) -> str:
+    """The per-energy columns as CSV text (empty fields where undefined)."""
+    lines = [",".join(COLUMNS)]
+    for row in zip(*(table[c] for c in COLUMNS)):
+        lines.append(",".join("" if v is None else repr(v) for v in row))
+    return "\n".join(lines) + "\n"
+
+
+def format_table(table: dict) -> str:
+    """A readable plain-text table with the packet summary below it."""
+    u = table["units"]
+    heads = [f"E [{u['energy']}]", "R", "T", "phi_r [rad]", "phi_t [rad]",
+             f"tau_R [{u['time']}]", f"tau_T [{u['time']}]", f"dwell [{u['time']}]"]
+    rows = [heads]
+    for row in zip(*(table[c] for c in COLUMNS)):
+        rows.append(["-" if v is None else f"{v:.6g}" for v in row])
+    width = [max(len(r[i]) for r in rows) for i in range(len(heads))]
+    text = [f"# {table.get('scenario', '')}",
+            f"# r referenced at x_r = {table['reference_points']['x_r']:g} {u['length']}, "
+            f"t at x_t = {table['reference_points']['x_t']:g} {u['length']} "
+            f"(incident from the {'left' if table['direction'] == 'right' else 'right'})"]
+    text += ["  ".join(c.rjust(w) for c, w in zip(r, width)) for r in rows]
+    pk = table.get("packet")
+    if pk:
+        def fmt(v):
+            return "-" if v is None else f"{v:.8g}"
+        text.append("")
+        text.append(f"packet: k0 = {pk['k0']:.6g}, sigma_k = {pk['sigma_k']:.4g}, "
+                    f"E0 = {pk['energy0']:.6g}, <E> = {pk['mean_energy']:.6g} {u['energy']}; "
+                    f"share above barrier top = {100 * pk['share_above_top']:.3g}%")
+        for name in ("reflection", "transmission"):
+            ch = pk[name]
+            if ch:
+                text.append(f"  {name:12s} P = {fmt(ch['probability'])}  centroid = "
+                            f"{fmt(ch['centroid_delay'])}  flux = {fmt(ch['flux_delay'])}  "
+                            f"spectral = {fmt(ch['spectral_delay'])}  Wigner(E0) = "
+                            f"{fmt(ch['wigner_delay'])} {u['time']}")
+        text.append(f"  dwell (packet) = {fmt(pk['dwell'])} {u['time']}")
+        for w in pk["warnings"]:
+            text.append(f"  warning: {w}")
+    return "\n".join(text) + "\n"
+
+
+def plot_theory(table: dict, path) -> None:
+    """R, T and the delays against energy, with the packet's spectrum shaded
+    (a Figure on its own Agg canvas: no pyplot state; matplotlib is loaded only
+    when a figure is asked for)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    def arr(key):
+        return np.array([np.nan if v is None else v for v in table[key]], dtype=float)
+
+    E = arr("energy")
+    u = table["units"]
+    fig = Figure(figsize=(7, 6), constrained_layout=True)
+    FigureCanvasAgg(fig)
+    ax1, ax2 = fig.subplots(2, 1, sharex=True)
+    ax1.plot(E, arr("R"), label="R")
+    ax1.plot(E, arr("T"), label="T")
+    ax1.set_ylabel("probability")
+    ax1.set_ylim(-0.02, 1.02)
+    ax2.plot(E, arr("delay_reflection"), label=r"$\tau_R$")
+    ax2.plot(E, arr("delay_transmission"), label=r"$\tau_T$")
+    ax2.plot(E, arr("dwell"), label=r"$\tau_D$", linestyle="--")
+    ax2.set_ylabel(f"delay [{u['time']}]")
+    ax2.set_xlabel(f"energy [{u['energy']}]")
+    spec = table.get("packet_spectrum")
+    if spec:
+        se = np.array(spec["energy"], dtype=float)
+        sw = np.array(spec["weight_dk"], dtype=float)
+        for ax in (ax1, ax2):
+            lo, hi = ax.get_ylim() if ax is ax2 else (0, 1)
+            ax.fill_between(se, lo, lo + (hi - lo) * sw / sw.max(), color="0.85", zorder=0,
+                            label="packet |ψ̃(k)|²" if ax is ax1 else None)
+    ax1.legend()
+    ax2.legend()
+    ax1.set_title(table.get("scenario", ""))
+    fig.savefig(path, dpi=120)
