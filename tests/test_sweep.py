@@ -16,7 +16,7 @@ from scipy.integrate import quad
 
 from sojourn import cli
 from sojourn.errors import ScenarioError
-from sojourn.sweep.core import METHODS, folder_lock, load_sweep, loads_sweep, run_sweep
+from sojourn.sweep import METHODS, folder_lock, load_sweep, loads_sweep, run_sweep
 from sojourn.errors import SweepError
 
 SIGMA = 20.0
@@ -308,7 +308,7 @@ def test_cli_bad_sweep_file_exits_2(base_dir, capsys):
 
 
 def test_points_do_not_begin_after_an_interrupt(base_dir):
-    from sojourn.sweep.core import STOP_NAME, _task, run_point
+    from sojourn.sweep.runner import STOP_NAME, _task, run_point
     sweep = loads_sweep("base: base.yaml\nvary: {packet.energy: [0.2]}\noutput: out\n",
                         "sw.yaml", base_dir)
     sweep.output.mkdir()

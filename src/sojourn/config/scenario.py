@@ -433,3 +433,6 @@ def set_path(data: dict, dotted: str, value: Any) -> None:
         node[parts[-1]] = value
     else:
         raise KeyError(dotted)
+
+
+model_at = _model_at   # public name for the sweep file reader
