@@ -166,6 +166,15 @@ def _number(value) -> float:
 
 
 def plot_summary(sweep: Sweep, rows: list, path: Path) -> None:
+    """Draw `summary_figure` into `path` (marked as written by a sweep)."""
+    fig = summary_figure(sweep, rows)
+    try:
+        fig.savefig(path, dpi=130, metadata={"Software": PNG_MARK})
+    finally:
+        plt.close(fig)
+
+
+def summary_figure(sweep: Sweep, rows: list):
     """Measured delays against the first varied key, one panel per channel, with
     theory: for a varied packet energy the phase delay τ(E) over the same range
     and each point's packet-averaged predictions; otherwise the predictions
@@ -235,8 +244,7 @@ def plot_summary(sweep: Sweep, rows: list, path: Path) -> None:
         ax.set_ylabel(f"{channel} delay [{u['time']}]")
         ax.legend(fontsize=7, ncol=2)
     fig.suptitle(f"{sweep.base.title}: sweep over {', '.join(sweep.keys)}", fontsize=10)
-    fig.savefig(path, dpi=130, metadata={"Software": PNG_MARK})
-    plt.close(fig)
+    return fig
 
 
 def _label(value) -> str:
