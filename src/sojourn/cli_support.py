@@ -46,15 +46,18 @@ class Bar:
     a resumed job's rate counts only the work done now; with `step_time`, it also
     shows the simulated time reached (in `time_unit`)."""
 
-    def __init__(self, unit: str, desc: str, step_time: float = 0.0, time_unit: str = ""):
+    def __init__(self, unit: str, desc: str, step_time: float = 0.0, time_unit: str = "",
+                 stream=None, disable=None):
         self.unit, self.desc, self.step_time, self.time_unit = unit, desc, step_time, time_unit
+        self.stream, self.disable = stream, disable     # disable None: off unless a terminal
         self.bar = None
 
     def __call__(self, done: int, total: int, counts: dict | None = None) -> None:
         if self.bar is None:
             from tqdm import tqdm
             self.bar = tqdm(total=total, initial=done, unit=self.unit, desc=self.desc,
-                            file=sys.stderr, dynamic_ncols=True, leave=False, disable=None)
+                            file=self.stream or sys.stderr, dynamic_ncols=True, leave=False,
+                            disable=self.disable)
         self.bar.total = total
         postfix = {}
         if self.step_time:
