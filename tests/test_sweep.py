@@ -389,6 +389,12 @@ def test_a_table_no_sweep_wrote_is_not_replaced(base_dir):
     with pytest.raises(SweepError, match="was not written by a sweep"):
         run_sweep(sweep)
     assert (out / "table.json").read_text() == '{"mine": 1}'
+    # a figure is known by its mark, or by a sweep's own table beside it (older sweeps)
+    from sojourn.sweep.table import is_ours
+    (out / "summary.png").write_bytes(b"\x89PNG\r\n\x1a\n unmarked")
+    assert not is_ours(out / "summary.png")
+    (out / "table.json").write_text('{"sweep": "sw.yaml", "rows": []}')
+    assert is_ours(out / "summary.png") and is_ours(out / "table.json")
 
 
 # ----------------------------------------------------------------------------------------

@@ -139,12 +139,16 @@ def is_ours(path: Path) -> bool:
         if path.name == TABLE_JSON:
             data = json.loads(path.read_text(encoding="utf-8"))
             return isinstance(data, dict) and "rows" in data and "sweep" in data
-        return PNG_MARK.encode() in path.read_bytes()
+        json_path = path.with_name(TABLE_JSON)      # a figure beside our own table is ours
+        return PNG_MARK.encode() in path.read_bytes() or (json_path.exists() and is_ours(json_path))
     except (OSError, ValueError):
         return False
 
 
 def _finite(value):
+    """The value with every NaN or infinity (also inside lists) as None: strict JSON."""
+    if isinstance(value, list):
+        return [_finite(v) for v in value]
     return None if isinstance(value, float) and not math.isfinite(value) else value
 
 
