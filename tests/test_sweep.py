@@ -474,19 +474,33 @@ def test_workers_stop_when_the_sweep_process_is_killed(tmp_path):
     import sys
     import time
     code = textwrap.dedent("""\
-        import multiprocessing, os, time
+        import multiprocessing, os, sys, time
         from concurrent.futures import ProcessPoolExecutor
-        from sojourn.sweep.runner import _watch_parent
+        from sojourn.sweep import runner
+
+        def point(marker):              # a point's shape: busy, and cleans up when stopped
+            runner._BUSY.set()
+            open(marker, "w").write("started")
+            try:
+                time.sleep(600)
+            except KeyboardInterrupt:
+                open(marker, "w").write("interrupted")
+            finally:
+                runner._BUSY.clear()
+
         if __name__ == "__main__":
             pool = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("spawn"),
-                                       initializer=_watch_parent, initargs=(os.getpid(), 0.1))
-            pool.submit(time.sleep, 600)
-            time.sleep(3)
+                                       initializer=runner._watch_parent,
+                                       initargs=(os.getpid(), 0.1))
+            pool.submit(point, sys.argv[1])
+            while not os.path.exists(sys.argv[1]):
+                time.sleep(0.05)
             print(*pool._processes, flush=True)
             time.sleep(600)
         """)
     (tmp_path / "parent.py").write_text(code)
-    proc = subprocess.Popen([sys.executable, str(tmp_path / "parent.py")],
+    marker = tmp_path / "stopped"
+    proc = subprocess.Popen([sys.executable, str(tmp_path / "parent.py"), str(marker)],
                             stdout=subprocess.PIPE, text=True)
     worker = int(proc.stdout.readline().split()[0])
     os.kill(worker, 0)                      # the worker is busy with its point
@@ -503,7 +517,7 @@ def test_workers_stop_when_the_sweep_process_is_killed(tmp_path):
         except (ProcessLookupError, FileNotFoundError):
             gone = True
         time.sleep(0.2)
-    assert gone
+    assert gone and marker.read_text() == "interrupted"   # the point was stopped, then the worker left
 
 
 # ----------------------------------------------------------------------------------------

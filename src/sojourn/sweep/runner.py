@@ -57,6 +57,7 @@ def run_point(task: dict) -> dict:
               "verified": bool(task["verify"])}
     if (folder / STOP_NAME).exists() or _ORPHANED.is_set():   # stopped before this point began
         return {**result, "status": "interrupted", "error": "interrupted"}
+    _BUSY.set()
     try:
         result.update(_run_and_measure(task, folder, name))
         result["status"] = "complete"
@@ -65,6 +66,8 @@ def run_point(task: dict) -> dict:
         return result
     except Exception as exc:  # noqa: BLE001 - a failing point must not stop the others
         result["error"] = _one_line(exc)
+    finally:
+        _BUSY.clear()
     write_atomic(folder / f"{name}.json", json.dumps(result, indent=1))
     return result
 
@@ -108,16 +111,26 @@ def _one_line(exc: BaseException) -> str:
 
 
 _ORPHANED = threading.Event()    # set in a worker whose sweep process has gone
+_BUSY = threading.Event()        # set while a worker runs a point
 
 
 def _watch_parent(parent: int, every: float = 0.5) -> None:
     """Pool initializer: a worker whose sweep process dies (even by kill -9) stops
-    its point as if interrupted, within `every` seconds, and begins no other."""
+    its point as if interrupted (the run file stays resumable) within `every`
+    seconds, then exits: nobody is left to take its result. SIGINT raises
+    KeyboardInterrupt here even if the sweep was started with it ignored (a
+    background job): it is how the watcher stops the point."""
+    signal.signal(signal.SIGINT, signal.default_int_handler)
+
     def watch():
         while os.getppid() == parent:
             time.sleep(every)
         _ORPHANED.set()
-        os.kill(os.getpid(), signal.SIGINT)
+        if _BUSY.is_set():
+            os.kill(os.getpid(), signal.SIGINT)
+        while _BUSY.is_set():          # the point closes its run file as interrupted
+            time.sleep(0.05)
+        os._exit(130)
 
     threading.Thread(target=watch, name="sojourn-parent-watch", daemon=True).start()
 
