@@ -136,6 +136,7 @@ def test_help_has_an_example_per_verb_and_describes_every_argument():
     import argparse
     from sojourn.cli import build_parser
     parser = build_parser()
+    assert all(action.help for action in parser._actions)
     verbs = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
     assert set(verbs.choices) == {"run", "check", "inspect", "demo", "delay", "theory",
                                   "render", "bench", "sweep"}

@@ -425,7 +425,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"sojourn {__version__}")
     parser.add_argument("--debug", action="store_true",
                         help="show tracebacks (accepted anywhere on the line)")
-    sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=Parser)
+    sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=Parser,
+                                help="what to do (sojourn VERB --help for its options)")
     for register in VERBS:
         register(sub)
     for verb, p in sub.choices.items():
