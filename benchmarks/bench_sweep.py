@@ -18,7 +18,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from sojourn.sweep.core import load_sweep, run_sweep
+from sojourn.sweep import load_sweep, run_sweep
 
 CONFIGS = Path(__file__).resolve().parent.parent / "configs"
 

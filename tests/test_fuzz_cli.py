@@ -143,7 +143,7 @@ def sweep_texts(draw):
 
 
 def check_sweep(text, folder) -> None:
-    from sojourn.sweep.core import loads_sweep
+    from sojourn.sweep import loads_sweep
     try:
         sweep = loads_sweep(text, "w.yaml", folder)
     except ScenarioError as exc:

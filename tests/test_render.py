@@ -279,13 +279,21 @@ def test_bad_movie_options_exit_2_with_one_line(run, tmp_path, capsys, extra):
     assert not movie.exists()
 
 
-@pytest.mark.parametrize("target", ["missing/m.mp4", "file.txt/m.mp4", "m.avi", "f.jpg"])
+@pytest.mark.parametrize("target", ["file.txt/m.mp4", "m.avi", "f.jpg"])
 def test_unwritable_or_unknown_outputs_exit_2(run, tmp_path, capsys, target):
     (tmp_path / "file.txt").write_text("not a folder")
     flag = "--figure" if target.endswith(".jpg") else "-o"
     assert cli.main(["render", str(run), flag, str(tmp_path / target), "-q"]) == 2
     err = capsys.readouterr().err.strip()
     assert err.startswith("sojourn: error:") and "\n" not in err
+
+
+def test_a_missing_output_folder_is_created_and_said(run, tmp_path, capsys):
+    # the rule of every command (run, theory --plot, render): create it, saying so
+    figure = tmp_path / "missing" / "f.png"
+    assert cli.main(["render", str(run), "--figure", str(figure), "-q"]) == 0
+    assert figure.read_bytes()[:4] == b"\x89PNG"
+    assert f"created the folder {figure.parent}" in capsys.readouterr().err
 
 
 def test_figure_size_in_inches_that_cannot_be_exits_2(run, tmp_path, capsys):

@@ -304,7 +304,7 @@ def test_a_second_writer_of_the_same_output_is_refused(write_scenario, tmp_path)
 
 
 def test_a_second_sweep_on_the_same_folder_is_refused(tmp_path):
-    from sojourn.sweep import core as sweep
+    from sojourn import sweep
     with sweep.folder_lock(tmp_path):
         with pytest.raises(sweep.SweepError, match="another sweep is running"):
             with sweep.folder_lock(tmp_path):

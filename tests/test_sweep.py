@@ -16,7 +16,7 @@ from scipy.integrate import quad
 
 from sojourn import cli
 from sojourn.errors import ScenarioError
-from sojourn.sweep.core import METHODS, folder_lock, load_sweep, loads_sweep, run_sweep
+from sojourn.sweep import METHODS, folder_lock, load_sweep, loads_sweep, run_sweep
 from sojourn.errors import SweepError
 
 SIGMA = 20.0
@@ -308,7 +308,7 @@ def test_cli_bad_sweep_file_exits_2(base_dir, capsys):
 
 
 def test_points_do_not_begin_after_an_interrupt(base_dir):
-    from sojourn.sweep.core import STOP_NAME, _task, run_point
+    from sojourn.sweep.runner import STOP_NAME, _task, run_point
     sweep = loads_sweep("base: base.yaml\nvary: {packet.energy: [0.2]}\noutput: out\n",
                         "sw.yaml", base_dir)
     sweep.output.mkdir()
@@ -345,3 +345,217 @@ def test_ctrl_c_keeps_completed_points_and_the_next_run_finishes(tmp_path):
     assert {p: (out / f"{p}.h5").stat().st_mtime_ns for p in done} == mtimes
     assert {r["point"]: r["status"] for r in again.rows} == {
         r["point"]: ("skipped" if r["point"] in done else "complete") for r in rows}
+
+
+# ----------------------------------------------------------------------------------------
+# Outputs never replace inputs or files no sweep wrote (nothing runs)
+
+
+TABLE_BASE = BASE.replace("  - step: {at: 0.0, height: 1.0}", "  - table: {file: table.csv}")
+
+
+def test_output_beside_an_input_table_is_refused_and_the_table_kept(tmp_path, capsys):
+    # the red-team case: base reads table.csv, sweep output '.' would write table.csv
+    (tmp_path / "table.csv").write_text("x,V\n-1000,0\n0,0\n0.001,1\n1000,1\n")
+    (tmp_path / "base.yaml").write_text(TABLE_BASE)
+    (tmp_path / "sw.yaml").write_text("base: base.yaml\nvary: {packet.energy: [0.2]}\noutput: .\n")
+    before = (tmp_path / "table.csv").read_bytes()
+    assert cli.main(["sweep", str(tmp_path / "sw.yaml"), "-q"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "table.csv, which is one of its inputs" in err[0]
+    assert (tmp_path / "table.csv").read_bytes() == before
+    assert not list(tmp_path.glob("point-*")) and not (tmp_path / ".sweep.lock").exists()
+
+
+def test_sweep_file_and_base_are_inputs_too(base_dir):
+    # the sweep file named like a point's scenario, in the output folder
+    (base_dir / "point-000.yaml").write_text("base: base.yaml\nvary: {packet.energy: [0.2]}\n"
+                                             "output: .\n")
+    with pytest.raises(SweepError, match="point-000.yaml, which is one of its inputs"):
+        run_sweep(load_sweep(base_dir / "point-000.yaml"))
+    (base_dir / "point-001.yaml").write_text(BASE)   # the base named like point 1's scenario
+    sweep = loads_sweep("base: point-001.yaml\nvary: {packet.energy: [0.2, 0.3]}\noutput: .\n",
+                        "sw.yaml", base_dir)
+    with pytest.raises(SweepError, match="point-001.yaml, which is one of its inputs"):
+        run_sweep(sweep)
+
+
+def test_a_table_no_sweep_wrote_is_not_replaced(base_dir):
+    out = base_dir / "out"
+    out.mkdir()
+    (out / "table.json").write_text('{"mine": 1}')
+    sweep = loads_sweep("base: base.yaml\nvary: {packet.energy: [0.2]}\noutput: out\n",
+                        "sw.yaml", base_dir)
+    with pytest.raises(SweepError, match="was not written by a sweep"):
+        run_sweep(sweep)
+    assert (out / "table.json").read_text() == '{"mine": 1}'
+    # a figure is known by its mark, or by a sweep's own table beside it (older sweeps)
+    from sojourn.sweep.table import is_ours
+    (out / "summary.png").write_bytes(b"\x89PNG\r\n\x1a\n unmarked")
+    assert not is_ours(out / "summary.png")
+    (out / "table.json").write_text('{"sweep": "sw.yaml", "rows": []}')
+    assert is_ours(out / "summary.png") and is_ours(out / "table.json")
+
+
+# ----------------------------------------------------------------------------------------
+# Sweep files are bounded before anything is expanded
+
+
+def bomb(levels=9):
+    """A billion-laughs list: 10**levels items once expanded, a few hundred bytes as text."""
+    lines = ["a0: &a0 [0.2, 0.2, 0.2, 0.2, 0.2, 0.2, 0.2, 0.2, 0.2, 0.2]"]
+    for i in range(1, levels):
+        lines.append(f"a{i}: &a{i} [" + ", ".join([f"*a{i - 1}"] * 10) + "]")
+    return lines
+
+
+@pytest.mark.parametrize("where", ["vary", "base", "pairing", "extra"])
+def test_alias_bombs_are_refused_before_expansion(base_dir, where):
+    head = bomb()
+    top = {"vary": "base: base.yaml\nvary: {packet.energy: *a8}\noutput: out\n",
+           "base": "base: *a8\nvary: {packet.energy: [0.2]}\noutput: out\n",
+           "pairing": "base: base.yaml\nvary: {packet.energy: [0.2]}\npairing: *a8\noutput: o\n",
+           "extra": "base: base.yaml\nvary: {packet.energy: [0.2], evolve.dt: [*a8]}\noutput: o\n"}
+    text = "\n".join(["anchors:"] + ["  " + line for line in head]) + "\n" + top[where]
+    with pytest.raises(SweepError, match="more than 100,000 values") as info:
+        loads_sweep(text, "sw.yaml", base_dir)
+    assert "\n" not in str(info.value) and str(info.value).startswith("sw.yaml:1:")
+
+
+def test_size_limits_on_text_points_and_values(base_dir):
+    with pytest.raises(SweepError, match="at most 1,000,000 are read"):
+        loads_sweep("base: base.yaml\n# " + "x" * 1_000_001 + "\n", "sw.yaml", base_dir)
+    many = "[" + ", ".join(["0.2"] * 200) + "]"
+    with pytest.raises(SweepError, match="makes 40,000 points; at most 10,000"):
+        loads_sweep(f"base: base.yaml\nvary: {{packet.energy: {many}, packet.width: {many}}}\n"
+                    "output: o\n", "sw.yaml", base_dir)
+    long_value = "[" + ", ".join(["1"] * 2000) + "]"
+    with pytest.raises(SweepError, match=r"vary.packet.energy\[1\]: a value with more than 1,000"):
+        loads_sweep(f"base: base.yaml\nvary:\n  packet.energy: [0.2, {long_value}]\noutput: o\n",
+                    "sw.yaml", base_dir)
+
+
+# ----------------------------------------------------------------------------------------
+# The lock file, and workers whose sweep was killed
+
+
+def test_lock_file_is_removed_when_the_sweep_ends(tmp_path):
+    with folder_lock(tmp_path) as path:
+        assert path.exists() and path.read_text().strip().isdigit()
+    assert not (tmp_path / ".sweep.lock").exists()
+    with folder_lock(tmp_path):    # and can be taken again
+        pass
+
+
+def test_a_killed_sweeps_lock_is_free_at_once(tmp_path):
+    import os
+    import signal
+    import subprocess
+    import sys
+    code = ("import sys, time; from sojourn.sweep import folder_lock\n"
+            f"with folder_lock({str(tmp_path)!r}):\n    print('held', flush=True); time.sleep(600)\n")
+    proc = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+    assert proc.stdout.readline().strip() == "held"
+    with pytest.raises(SweepError, match="another sweep is running in this folder"):
+        with folder_lock(tmp_path):
+            pass
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    with folder_lock(tmp_path):   # kill -9: the lock went with the process
+        pass
+
+
+def test_workers_stop_when_the_sweep_process_is_killed(tmp_path):
+    # the local pool's workers watch their parent: after a kill -9 of the sweep
+    # they stop their point (as on Ctrl-C) instead of finishing it unseen
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    code = textwrap.dedent("""\
+        import multiprocessing, os, sys, time
+        from concurrent.futures import ProcessPoolExecutor
+        from sojourn.sweep import runner
+
+        def point(marker):              # a point's shape: busy, and cleans up when stopped
+            runner._BUSY.set()
+            open(marker, "w").write("started")
+            try:
+                time.sleep(600)
+            except KeyboardInterrupt:
+                open(marker, "w").write("interrupted")
+            finally:
+                runner._BUSY.clear()
+
+        if __name__ == "__main__":
+            pool = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("spawn"),
+                                       initializer=runner._watch_parent,
+                                       initargs=(os.getpid(), 0.1))
+            pool.submit(point, sys.argv[1])
+            while not os.path.exists(sys.argv[1]):
+                time.sleep(0.05)
+            print(*pool._processes, flush=True)
+            time.sleep(600)
+        """)
+    (tmp_path / "parent.py").write_text(code)
+    marker = tmp_path / "stopped"
+    proc = subprocess.Popen([sys.executable, str(tmp_path / "parent.py"), str(marker)],
+                            stdout=subprocess.PIPE, text=True)
+    worker = int(proc.stdout.readline().split()[0])
+    os.kill(worker, 0)                      # the worker is busy with its point
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    deadline = time.monotonic() + 60        # a liveness bound, not a timing check
+    gone = False
+    while time.monotonic() < deadline and not gone:
+        try:
+            os.kill(worker, 0)
+            # a zombie counts as gone: it is not running a point any more
+            with open(f"/proc/{worker}/stat") as handle:
+                gone = handle.read().split(")")[-1].split()[0] == "Z"
+        except (ProcessLookupError, FileNotFoundError):
+            gone = True
+        time.sleep(0.2)
+    assert gone and marker.read_text() == "interrupted"   # the point was stopped, then the worker left
+
+
+# ----------------------------------------------------------------------------------------
+# Warnings travel with the numbers; strict JSON; untrusted points hollow (nothing runs)
+
+
+def test_warnings_column_full_texts_strict_json_and_hollow_points(base_dir):
+    from sojourn.sweep import summary_figure, write_results
+    sweep = loads_sweep("base: base.yaml\nvary: {packet.energy: [0.3, 0.5]}\noutput: out\n",
+                        "sw.yaml", base_dir)
+    sweep.output.mkdir()
+    text = "the reflection packet has not separated from the potential by the end"
+
+    def measured(delay):
+        values = {"R": 1.0, "T": float("nan"), "reflection_delay_wigner": 2.0,
+                  "reflection_delay_packet": 2.0}
+        for m in METHODS:
+            values.update({f"reflection_delay_{m}": delay, f"reflection_predicted_{m}": 2.0,
+                           f"reflection_error_{m}": None})
+        return values
+
+    results = {0: {"status": "complete", "measured": measured(2.01), "warnings": []},
+               1: {"status": "complete", "measured": measured(float("nan")),
+                   "warnings": [text, text + " again"]}}
+    results[1]["measured"]["reflection_delay_centroid"] = 2.5
+    outcome = write_results(sweep, results)
+    rows = {r["point"]: r for r in outcome.rows}
+    assert rows["point-000"]["warnings"] == ""
+    assert rows["point-001"]["warnings"] == "reflection-packet-not-separated"
+    # strict JSON (RFC 8259 has no NaN): the parser refuses any NaN/Infinity token
+    raw = outcome.table_json.read_text()
+    table = json.loads(raw, parse_constant=lambda name: pytest.fail(f"{name} in table.json"))
+    assert table["rows"][1]["T"] is None and table["rows"][1]["reflection_delay_arrival"] is None
+    assert table["warning_texts"] == {"point-001": [text, text + " again"]}
+    header = outcome.table_csv.read_text().splitlines()[1].split(",")
+    assert header[-3:] == ["status", "error", "warnings"]
+    fig = summary_figure(sweep, outcome.rows)
+    centroid = [line for line in fig.axes[0].lines if line.get_marker() == "o"
+                and len(line.get_xdata()) == 1]
+    faces = {float(line.get_xdata()[0]): line.get_markerfacecolor() for line in centroid}
+    assert faces[0.5] == "none" and faces[0.3] != "none"   # untrusted hollow, trusted filled

@@ -1,38 +1,31 @@
 """The `sojourn` command: argument parsing and printing only; the work is done
 by the library. Exit codes: 0 success, 2 bad input, 1 anything else,
-130 interrupted. Bad input never shows a traceback (`--debug` does)."""
+130 interrupted. Bad input never shows a traceback (`--debug`, anywhere on the
+line, does). Each verb is one `add_<verb>(sub)` appended to VERBS; the stages
+are imported inside the commands, so `sojourn --help` stays fast."""
 from __future__ import annotations
 
 import argparse
 import json
 import os
-import signal
+import re
 import sys
-from importlib import resources
 from pathlib import Path
+
+from . import __version__
+from .cli_format import describe_runfile, format_bench, format_check, format_delay_report, \
+    format_inspect
+from .cli_support import EXAMPLES, STOP, Parser, demo_scenario_path, ensure_folder, error_text, \
+    prepare_outputs, progress_bar, refuse_inputs, report_findings, scenario_inputs, step_bar, stop_on_signals
+from .cli_support import frame_bar as _frame_bar, say as _say, warn as _warn
 from .errors import SojournError, UsageError
 
-
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+VERBS: list = []        # functions add_<verb>(sub) that add a verb's subparser, in help order
+DEMO_STEPS: list = []   # later stages of `demo` (delay report, movie, figure), in order
 
 
-
-
-class _Parser(argparse.ArgumentParser):
-    def error(self, message):  # one line, exit 2
-        raise UsageError(f"{self.prog}: {message} (see --help)")
-
-
-def _say(*parts, file=None) -> None:
-    print(*parts, file=file or sys.stdout, flush=True)
-
-
-def _warn(message: str) -> None:
-    print(f"sojourn: {message}", file=sys.stderr, flush=True)
-
-
-# ---------------------------------------------------------------------------------------
-# run / check
+# --- run / check
 
 
 def _load_and_build(path):
@@ -42,72 +35,29 @@ def _load_and_build(path):
     return scenario, build(scenario)
 
 
-def _report_findings(setup, quiet=False, force=False, stream=None) -> None:
-    """Print warnings (and infos unless quiet); raise on errors not forced."""
-    stream = stream or sys.stderr
-    for f in setup.findings:
-        if f.level == "warning":
-            print(f"sojourn: warning: {f}", file=stream)
-        elif f.level == "info" and not quiet:
-            print(f"sojourn: {f}", file=stream)
-    errors = [f for f in setup.errors() if not (force and f.forceable)]
-    if errors:
-        source = setup.scenario.source or "scenario"
-        raise SojournError(errors[0].located(source) + (
-            " (--force overrides this)" if errors[0].forceable else ""))
-    for f in setup.errors():
-        print(f"sojourn: warning (forced): {f}", file=stream)
-
-
-def _progress_bar(total: int, quiet: bool):
-    if quiet:
-        return None, lambda: None
-    from tqdm import tqdm
-    bar = tqdm(total=total, unit="step", file=sys.stderr, dynamic_ncols=True, leave=False,
-               disable=None)
-    state = {"done": 0}
-
-    def update(done, _total):
-        bar.update(done - state["done"])
-        state["done"] = done
-
-    return update, bar.close
-
-
 def run_scenario(path, output=None, overwrite=False, resume=False, force=False, quiet=False):
     """Validate, guard, run; returns the run file's path."""
     from . import workflows
+    from .store.paths import output_path
     scenario, setup = _load_and_build(path)
-    _report_findings(setup, quiet, force)
-    update, close = _progress_bar(setup.steps, quiet)
-    _STOP["requested"] = False
-    previous = {sig: signal.signal(sig, _sigterm) for sig in (signal.SIGTERM, signal.SIGINT)}
+    report_findings(setup, quiet, force)
+    final = Path(output) if output else output_path(scenario)
+    refuse_inputs(final, scenario_inputs(scenario), "the run file")
+    ensure_folder(final.parent)
+    update, close = step_bar(setup, quiet, "running")
 
     def step(done, total):   # a Ctrl-C or SIGTERM stops the run here, at a recording
-        if _STOP["requested"]:
+        if STOP["requested"]:
             raise KeyboardInterrupt
         if update:
             update(done, total)
 
-    try:
-        result = workflows.run(setup, Path(output) if output else None, overwrite, resume, step)
-    finally:
-        close()
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
+    with stop_on_signals():
+        try:
+            result = workflows.run(setup, final, overwrite, resume, step)
+        finally:
+            close()
     return result
-
-
-_STOP = {"requested": False}
-
-
-def _sigterm(signum, frame):
-    """The first signal asks the run to stop at its next recording (raising here,
-    at an arbitrary point, could land in a finalizer and be lost or print a
-    traceback); a second one stops at once."""
-    if _STOP["requested"]:
-        raise KeyboardInterrupt
-    _STOP["requested"] = True
 
 
 def cmd_run(args) -> int:
@@ -121,129 +71,9 @@ def cmd_run(args) -> int:
     return EXIT_OK
 
 
-def _verify(path):
-    """Delays with convergence error bars (two reruns), announced as slow."""
-    from . import workflows
-    _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
-          "run's cost; and Δt/2, about 2×) — this takes a while")
-    return workflows.verify(path, progress=_warn)
-
-
-def cmd_check(args) -> int:
-    scenario, setup = _load_and_build(args.scenario)
-    info, g, units = setup.packet, setup.grid, scenario.unit_system
-    needed = 2 * (abs(info.k0) + 6 * info.sigma_k)
-    lines = [
-        f"scenario   {scenario.source}: {scenario.title}",
-        f"units      {units.name} (length {units.length}, energy {units.energy}, time {units.time}); "
-        f"mass {scenario.mass} m_e",
-        f"potential  {setup.potential.describe()}",
-        f"grid       {g.points} points on [{g.left:g}, {g.right:g}), dx = {g.dx:.4g}; "
-        f"k_max = {g.k_max:.4g} (packet needs ≥ {needed:.4g})",
-        f"packet     centre {info.center:g}, width {info.width:g}, k₀ = {info.k0:.5g}, "
-        f"σ_k = {info.sigma_k:.4g} (k₀/σ_k = {info.k_ratio:.3g}); E₀ = {info.energy:.6g}, "
-        f"⟨E⟩ = {info.mean_energy:.6g} {units.energy}; v₀ = {info.group_velocity:.4g}",
-        f"time       dt = {setup.dt:.4g} {units.time}{' (chosen)' if setup.dt_chosen else ''}, "
-        f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_max+ΔV)/ħ = "
-        f"{setup.grid_phase:.3g} (limit 2π, safe below π); scheme {scenario.evolve.scheme}",
-        f"recording  every {setup.record_steps} steps ({setup.record_steps * setup.dt:.4g} "
-        f"{units.time}), {setup.snapshots} snapshots; samples every {setup.sample_steps} steps",
-        f"measure    reference {setup.reference:g}; detectors "
-        f"{', '.join(f'{d:g}' for d in setup.detectors) or 'none'}; region "
-        f"{setup.region if setup.region else 'none'}",
-    ]
-    for line in lines:
-        _say(line)
-    for f in setup.findings:
-        _say(f"{f.level:<10} {f}")
-    n_err = len(setup.errors())
-    _say("ok: the scenario can run" if not n_err else
-         f"{n_err} problem(s) would stop `sojourn run`")
-    return EXIT_OK if not n_err else EXIT_INPUT
-
-
-# ---------------------------------------------------------------------------------------
-# inspect
-
-
-def describe_runfile(path) -> dict:
-    from .store import RunFile
-    with RunFile(path) as rf:
-        attrs = rf.attrs
-        obs = rf.observables()
-        n = len(rf)
-        out = {
-            "file": str(path), "status": rf.status, "title": str(attrs.get("title", "")),
-            "format_version": int(attrs["format_version"]),
-            "sojourn_version": str(attrs.get("sojourn_version", "")),
-            "created": str(attrs.get("created", "")), "units": rf.units,
-            "provenance": json.loads(attrs.get("provenance", "{}")),
-            "grid_points": rf.points,
-            "snapshots": n, "t_last": float(obs["t"][-1]) if n else None,
-            "dt": float(attrs["dt"]), "scheme": str(attrs["scheme"]),
-            "detectors": [float(d) for d in rf.samples()["detectors"]],
-            "final": {k: float(v[-1]) for k, v in obs.items() if len(v)},
-            "analysis": rf.analysis() is not None,
-        }
-    return out
-
-
-def cmd_inspect(args) -> int:
-    info = describe_runfile(args.file)
-    if args.json:
-        _say(json.dumps(info, indent=2))
-        return EXIT_OK
-    u = info["units"]
-    _say(f"{info['file']}: {info['title']}")
-    _say(f"  status {info['status']}, format {info['format_version']}, written by sojourn "
-         f"{info['sojourn_version']} on {info['created']}")
-    _say(f"  {info['grid_points']} grid points, {info['snapshots']} snapshots up to t = "
-         f"{info['t_last']:g} {u['time']}, dt = {info['dt']:g}, scheme {info['scheme']}")
-    _say("  last recording: " + ", ".join(f"{k} = {v:.6g}" for k, v in info["final"].items()
-                                          if k != "t"))
-    _say(f"  FFT {info['provenance'].get('fft')}, CPU {info['provenance'].get('cpu')}")
-    if info["analysis"]:
-        _say("  holds a saved delay analysis (/analysis)")
-    return EXIT_OK
-
-
-# ---------------------------------------------------------------------------------------
-# demo
-
-
-def demo_scenario_path(folder: Path) -> Path:
-    """Copy the built-in demo scenario into `folder` and return its path."""
-    text = resources.files("sojourn").joinpath("data/demo.yaml").read_text()
-    folder.mkdir(parents=True, exist_ok=True)
-    target = folder / "demo.yaml"
-    target.write_text(text)
-    return target
-
-
-def cmd_demo(args) -> int:
-    out = Path(args.output)
-    scenario_path = demo_scenario_path(out)
-    _say(f"scenario   {scenario_path}")
-    run_path = run_scenario(scenario_path, out / "demo.h5", overwrite=True, quiet=args.quiet)
-    _say(f"run file   {run_path}")
-    for step in DEMO_STEPS:
-        step(run_path, out, args)
-    return EXIT_OK
-
-
-DEMO_STEPS: list = []  # later stages (delay report, movie, figure) append themselves
-
-
-# ---------------------------------------------------------------------------------------
-
-
-def build_parser() -> argparse.ArgumentParser:
-    parser = _Parser(prog="sojourn", description="Wave-packet scattering and time delays.")
-    parser.add_argument("--debug", action="store_true", help="show tracebacks")
-    sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=_Parser)
-
+def add_run(sub) -> None:
     p = sub.add_parser("run", help="simulate a scenario and write a run file")
-    p.add_argument("scenario")
+    p.add_argument("scenario", help="a scenario file (YAML)")
     p.add_argument("-o", "--output", help="run file (default: record.output or outputs/NAME.h5)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing result")
     p.add_argument("--resume", action="store_true", help="continue an interrupted run")
@@ -254,65 +84,84 @@ def build_parser() -> argparse.ArgumentParser:
                    help="then measure the delays with convergence error bars (two reruns; slow)")
     p.set_defaults(func=cmd_run)
 
+
+VERBS.append(add_run)
+
+
+def _verify(path):
+    """Delays with convergence error bars (two reruns), announced as slow."""
+    from . import workflows
+    _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
+          "run's cost; and Δt/2, about 2×) — this takes a while")
+    return workflows.verify(path, progress=warn)
+
+
+def cmd_check(args) -> int:
+    scenario, setup = _load_and_build(args.scenario)
+    for line in format_check(scenario, setup):
+        _say(line)
+    return EXIT_OK if not setup.errors() else EXIT_INPUT
+
+
+def add_check(sub) -> None:
     p = sub.add_parser("check", help="validate a scenario and report resolution and estimates")
-    p.add_argument("scenario")
+    p.add_argument("scenario", help="a scenario file (YAML)")
     p.set_defaults(func=cmd_check)
 
+
+VERBS.append(add_check)
+
+
+# --- inspect
+
+def cmd_inspect(args) -> int:
+    from .store import RunFile
+    with RunFile(args.file) as rf:
+        info = describe_runfile(rf, args.file)
+    if args.json:
+        _say(json.dumps(info, indent=2))
+        return EXIT_OK
+    for line in format_inspect(info):
+        _say(line)
+    return EXIT_OK
+
+
+def add_inspect(sub) -> None:
     p = sub.add_parser("inspect", help="what a run file holds")
-    p.add_argument("file")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("file", help="a run file (.h5)")
+    p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(func=cmd_inspect)
 
-    p = sub.add_parser("demo", help="the built-in scenario end to end, into ./outputs/")
-    p.add_argument("-o", "--output", default="outputs", help="folder (default: outputs)")
-    p.add_argument("-q", "--quiet", action="store_true")
-    p.set_defaults(func=cmd_demo)
 
-    for register in VERBS:
-        register(sub)
-    return parser
-
-
-VERBS: list = []  # functions that add a verb's subparser (theory, delay, render, sweep, bench)
+VERBS.append(add_inspect)
 
 
 # ---------------------------------------------------------------------------------------
-# delay
+# demo
+
+def cmd_demo(args) -> int:
+    out = Path(args.output)
+    scenario_path = demo_scenario_path(out, args.overwrite)
+    _say(f"scenario   {scenario_path}")
+    run_path = run_scenario(scenario_path, out / "demo.h5", overwrite=True, quiet=args.quiet)
+    _say(f"run file   {run_path}")
+    for step in DEMO_STEPS:
+        step(run_path, out, args)
+    return EXIT_OK
 
 
-def _num(value, digits=7) -> str:
-    return "—" if value is None else f"{value:.{digits}g}"
+def add_demo(sub) -> None:
+    p = sub.add_parser("demo", help="the built-in scenario end to end, into ./outputs/")
+    p.add_argument("-o", "--output", default="outputs", help="folder (default: outputs)")
+    p.add_argument("--overwrite", action="store_true", help="replace an earlier demo there")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bars or notes")
+    p.set_defaults(func=cmd_demo)
 
 
-def format_delay_report(report, moves=None) -> list:
-    """The delay report as lines of text: one table per channel, warnings below."""
-    lines = [f"{report.file}  (times in {report.units.get('time', '')})"]
-    for ch in report.channels():
-        lines += ["", f"{ch.channel}: probability {ch.probability:.6g} (detector flux "
-                      f"{_num(ch.probability_flux, 6)}, spectrum {_num(ch.probability_spectral, 6)}; "
-                      f"theory {_num(ch.predicted_probability, 6)}); reference: "
-                      f"{'filtered' if ch.filtered else 'free'} packet",
-                  f"  {'method':<10}{'measured':>14}{'predicted':>14}{'deviation':>12}"
-                  f"{'relative':>11}{'error bar':>11}"]
-        for method, r in ch.measured.items():
-            rel = "—" if r.relative is None else f"{r.relative:.2e}"
-            err = "—" if r.error is None else f"±{r.error:.2g}"
-            lines.append(f"  {method:<10}{_num(r.delay):>14}{_num(r.predicted):>14}"
-                         f"{_num(r.deviation, 3):>12}{rel:>11}{err:>11}")
-        lines.append(f"  phase delay at E₀ (Wigner) {_num(ch.wigner)}; flux-weighted ⟨τ⟩_w "
-                     f"{_num(ch.packet)}")
-    d = report.dwell
-    if d.get("measured") is not None:
-        lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "
-                      f"{_num(d['measured'])}, packet-averaged Büttiker {_num(d['predicted'])}"]
-    if moves:
-        lines += ["", "convergence (how far each delay moves):"]
-        lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "
-                  f"error bar ±{m['error']:.2g}" for key, m in moves.items()]
-    if report.warnings:
-        lines += [""] + [f"warning: {w}" for w in report.warnings]
-    return lines
+VERBS.append(add_demo)
 
+
+# --- delay
 
 def cmd_delay(args) -> int:
     from .measure import core as measure
@@ -359,14 +208,15 @@ VERBS.append(add_delay)
 DEMO_STEPS.append(demo_delay)
 
 
-# ---------------------------------------------------------------------------------------
-# theory
-
+# --- theory
 
 def cmd_theory(args) -> int:
     from .theory import tables as theory
     from .config.scenario import load
     scenario = load(args.scenario)
+    for dest in ("plot", "synthesize"):   # never the table file the scenario reads
+        if getattr(args, dest):
+            refuse_inputs(Path(getattr(args, dest)), scenario_inputs(scenario), f"--{dest}")
     if args.synthesize:
         return _synthesize(scenario, args)
     energies = theory.parse_energies(args.energies) if args.energies else None
@@ -386,7 +236,7 @@ def cmd_theory(args) -> int:
 
 def add_theory(sub) -> None:
     p = sub.add_parser("theory", help="R, T, phases, phase delays, dwell time versus energy")
-    p.add_argument("scenario")
+    p.add_argument("scenario", help="a scenario file (YAML)")
     p.add_argument("--energies", metavar="A:B:N",
                    help="N energies from A to B in the scenario's units (default: the packet's band)")
     fmt = p.add_mutually_exclusive_group()
@@ -396,7 +246,7 @@ def add_theory(sub) -> None:
     p.add_argument("--synthesize", metavar="FILE.h5",
                    help="write the exact solution (built from stationary states) as a run file")
     p.add_argument("--overwrite", action="store_true", help="with --synthesize: replace FILE.h5")
-    p.add_argument("-q", "--quiet", action="store_true")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or notes")
     p.set_defaults(func=cmd_theory)
 
 
@@ -404,8 +254,8 @@ def _synthesize(scenario, args) -> int:
     from .build import build
     from . import workflows
     setup = build(scenario)
-    _report_findings(setup, args.quiet, force=True)
-    update, close = _progress_bar(setup.steps, args.quiet)
+    report_findings(setup, args.quiet, force=True)
+    update, close = step_bar(setup, args.quiet, "synthesizing")
     try:
         path = workflows.synthesize(setup, Path(args.synthesize), args.overwrite, update)
     finally:
@@ -417,23 +267,7 @@ def _synthesize(scenario, args) -> int:
 VERBS.append(add_theory)
 
 
-# ---------------------------------------------------------------------------------------
-# render
-
-
-def _frame_bar(quiet: bool):
-    if quiet:
-        return None, lambda: None
-    from tqdm import tqdm
-    bar = tqdm(unit="frame", file=sys.stderr, dynamic_ncols=True, leave=False, disable=None,
-               desc="encoding")
-
-    def update(done, total):
-        bar.total = total
-        bar.update(done - bar.n)
-
-    return update, bar.close
-
+# --- render
 
 def cmd_render(args) -> int:
     from .render import core as render
@@ -502,8 +336,7 @@ VERBS.append(add_render)
 DEMO_STEPS.append(demo_render)
 
 
-# bench: this machine's throughput against the FFT limit
-
+# --- bench: this machine's throughput against the FFT limit
 
 def cmd_bench(args) -> int:
     from . import bench
@@ -515,19 +348,8 @@ def cmd_bench(args) -> int:
         _say(json.dumps({"fft": backend_name(), "results": [r.as_dict() for r in results]},
                         indent=2))
         return EXIT_OK
-    _say(f"FFT {backend_name()}, {'single' if args.single else 'double'} precision; the FFT "
-         "limit is a bare planned FFT pair plus two multiplies")
-    _say(f"{'points':>8} {'threads':>7} {'steps/s':>10} {'limit/s':>10} {'fraction':>8} "
-         f"{'unsampled':>9} {'sampled every':>13} {'point-steps/s':>13}")
-    for r in results:
-        _say(f"{r.points:>8} {r.threads:>7} {r.steps_per_second:>10.4g} "
-             f"{r.limit_steps_per_second:>10.4g} {r.fraction:>8.2f} "
-             f"{r.propagator_fraction:>9.2f} {r.sample_steps:>13} "
-             f"{r.point_steps_per_second:>13.3g}")
-    _say("fraction: of the FFT limit, with the run loop's sampling at its default rate "
-         "(unsampled: the propagator alone).")
-    _say("A run of N points and S steps takes about N·S / (point-steps/s) seconds here "
-         "(plus writing snapshots).")
+    for line in format_bench(results, backend_name(), args.single):
+        _say(line)
     return EXIT_OK
 
 
@@ -538,43 +360,29 @@ def add_bench(sub) -> None:
     p.add_argument("--single", action="store_true", help="single precision (complex64)")
     p.add_argument("--threads", type=int, default=None,
                    help="FFT threads (default: 1, or $SOJOURN_FFT_THREADS)")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     p.set_defaults(func=cmd_bench)
 
 
 VERBS.append(add_bench)
 
 
-# ---------------------------------------------------------------------------------------
-# sweep
-
-
-def _sweep_bar(total: int, quiet: bool):
-    if quiet:
-        return None, lambda: None
-    from tqdm import tqdm
-    bar = tqdm(total=total, unit="point", file=sys.stderr, dynamic_ncols=True, desc="sweep")
-
-    def update(done, _total, counts):
-        bar.set_postfix({k: counts[k] for k in ("complete", "skipped", "failed") if k in counts},
-                        refresh=False)
-        bar.update(done - bar.n)
-
-    return update, bar.close
-
+# --- sweep
 
 def cmd_sweep(args) -> int:
-    from .sweep import core as sw
+    from . import sweep as sw
     spec = sw.load_sweep(args.sweep)
     if args.workers is not None and args.workers < 1:
-        raise UsageError("sojourn sweep: --workers must be at least 1")
+        raise UsageError("sweep: --workers must be at least 1")
+    sw.check_outputs(spec)
     if args.verify:
         _warn("--verify: every point is rerun twice more (2× finer grid at Δt/4, about 8× "
               "its cost; and Δt/2, about 2×) for error bars — this takes about 10× longer")
     for point in spec.points:
         if point.error:
             _warn(f"{point.name} is invalid and will not run: {point.error}")
-    update, close = _sweep_bar(len(spec.points), args.quiet)
+    ensure_folder(spec.output)
+    update, close = progress_bar(args.quiet, "point", "sweep points")
     try:
         outcome = sw.run_sweep(spec, args.workers, args.scheduler, args.verify, update)
     except KeyboardInterrupt:
@@ -586,8 +394,11 @@ def cmd_sweep(args) -> int:
     for row in outcome.rows:
         if row["status"] == "failed":
             _warn(f"{row['point']} failed: {row['error']}")
+    untrusted = sum(1 for r in outcome.rows if r["status"] in ("complete", "skipped")
+                    and r.get("warnings"))
     _say(f"{outcome.count('complete')} complete, {outcome.count('skipped')} already done, "
-         f"{outcome.count('failed')} failed of {len(outcome.rows)} points")
+         f"{outcome.count('failed')} failed of {len(outcome.rows)} points"
+         + (f"; {untrusted} with warnings (column 'warnings')" if untrusted else ""))
     _say(f"wrote {outcome.table_csv}, {outcome.table_json.name}, {outcome.summary.name}")
     return EXIT_OK if not outcome.count("failed") else EXIT_FAIL
 
@@ -608,19 +419,37 @@ def add_sweep(sub) -> None:
 VERBS.append(add_sweep)
 
 
+def build_parser() -> argparse.ArgumentParser:
+    parser = Parser(prog="sojourn", description="Wave-packet scattering and time delays.",
+                     epilog="example: sojourn demo; sojourn VERB --help for each verb")
+    parser.add_argument("--version", action="version", version=f"sojourn {__version__}")
+    parser.add_argument("--debug", action="store_true",
+                        help="show tracebacks (accepted anywhere on the line)")
+    sub = parser.add_subparsers(dest="verb", metavar="VERB", parser_class=Parser,
+                                help="what to do (sojourn VERB --help for its options)")
+    for register in VERBS:
+        register(sub)
+    for verb, p in sub.choices.items():
+        p.epilog = f"example:\n  {EXAMPLES[verb]}\n" if verb in EXAMPLES else p.epilog
+    return parser
+
+
 def main(argv=None) -> int:
-    argv = sys.argv[1:] if argv is None else argv
-    debug = "--debug" in argv
+    argv = list(sys.argv[1:] if argv is None else argv)
+    end = argv.index("--") if "--" in argv else len(argv)
+    debug = "--debug" in argv[:end]
+    argv = [a for i, a in enumerate(argv) if not (a == "--debug" and i < end)]
     try:
         args = build_parser().parse_args(argv)
         if not getattr(args, "func", None):
             build_parser().print_help()
             return EXIT_INPUT
+        prepare_outputs(args)
         return args.func(args)
     except SojournError as exc:
         if debug:
             raise
-        _warn(f"error: {exc}")
+        _warn(f"error: {error_text(exc)}")
         return EXIT_INPUT
     except BrokenPipeError:  # output piped into a program that stopped reading
         sys.stdout = open(os.devnull, "w")

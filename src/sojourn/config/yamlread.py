@@ -81,28 +81,34 @@ def _check_node(node, path, lines, seen, counter) -> None:
             _check_node(item, path + (i,), lines, seen, counter)
 
 
-def _expanded_size(data, memo=None, active=None) -> float:
-    """How many items the data hold once aliases are expanded (inf for a cycle);
-    each shared list or mapping is counted once and its size remembered."""
-    memo = {} if memo is None else memo
-    active = set() if active is None else active
-    if not isinstance(data, (dict, list)):
-        return 1
-    key = id(data)
-    if key in memo:
-        return memo[key]
-    if key in active:
-        return float("inf")
-    active.add(key)
-    items = list(data.keys()) + list(data.values()) if isinstance(data, dict) else data
-    total = 1.0
-    for item in items:
-        total += _expanded_size(item, memo, active)
-        if total > MAX_ITEMS:
-            break
-    active.discard(key)
-    memo[key] = total
-    return total
+def expanded_size(data, limit: float = MAX_ITEMS) -> float:
+    """How many items the data hold once aliases are expanded, counted up to just
+    past `limit` (inf for data that contain themselves). A shared list is
+    measured once and counted at each use, so an alias bomb is measured without
+    being expanded."""
+    sizes: dict = {}
+    active: set = set()
+
+    def size(node) -> float:
+        if not isinstance(node, (dict, list)):
+            return 1
+        key = id(node)
+        if key in sizes:
+            return sizes[key]
+        if key in active:
+            return float("inf")
+        active.add(key)
+        items = list(node.keys()) + list(node.values()) if isinstance(node, dict) else node
+        total = 1.0
+        for item in items:
+            total += size(item)
+            if total > limit:
+                break
+        active.discard(key)
+        sizes[key] = total if total == float("inf") else min(total, limit + 1)
+        return sizes[key]
+
+    return size(data)
 
 
 def _bad_text(data, seen=None) -> bool:
@@ -121,10 +127,12 @@ def _bad_text(data, seen=None) -> bool:
     return any(_bad_text(item, seen) for item in items)
 
 
-def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
-    """YAML text → (plain data, {key path: line}), or a one-line ScenarioError."""
+def parse_yaml(text: str, source: str, error=ScenarioError, max_items: int = MAX_ITEMS,
+               what: str = "items") -> tuple[Any, dict]:
+    """YAML text → (plain data, {key path: line}), or a one-line `error`
+    (at most `max_items` items once aliases are expanded)."""
     if len(text) > MAX_TEXT:
-        raise ScenarioError(f"{source}:1: the file has {len(text)} characters, more than "
+        raise error(f"{source}:1: the file has {len(text)} characters, more than "
                             f"{MAX_TEXT}; a scenario is far smaller")
     lines: dict = {}
     try:
@@ -133,30 +141,30 @@ def parse_yaml(text: str, source: str) -> tuple[Any, dict]:
             _check_node(node, (), lines, set(), [0])
         data = yaml.load(text, Loader=_CoreLoader)
     except _Refused as exc:
-        raise ScenarioError(f"{source}:{exc.line}: {exc.message}") from None
+        raise error(f"{source}:{exc.line}: {exc.message}") from None
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line = mark.line + 1 if mark else 1
-        raise ScenarioError(f"{source}:{line}: not valid YAML: "
+        raise error(f"{source}:{line}: not valid YAML: "
                             f"{one_line(exc.problem or exc)}") from None
     except yaml.YAMLError as exc:
-        raise ScenarioError(f"{source}:1: not valid YAML: {one_line(exc)}") from None
+        raise error(f"{source}:1: not valid YAML: {one_line(exc)}") from None
     except (ValueError, TypeError, OverflowError) as exc:   # a scalar the constructor cannot read
-        raise ScenarioError(f"{source}:1: a value cannot be read: {one_line(exc, 120)}") from None
+        raise error(f"{source}:1: a value cannot be read: {one_line(exc, 120)}") from None
     except (RecursionError, MemoryError):
-        raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
+        raise error(f"{source}:1: YAML nested too deeply") from None
     try:
-        size = _expanded_size(data)
+        size = expanded_size(data, max_items)
     except RecursionError:
-        raise ScenarioError(f"{source}:1: YAML nested too deeply") from None
+        raise error(f"{source}:1: YAML nested too deeply") from None
     if size == float("inf"):
-        raise ScenarioError(f"{source}:1: an alias (*name) refers to itself; a scenario "
+        raise error(f"{source}:1: an alias (*name) refers to itself; a scenario "
                             "cannot contain itself")
-    if size > MAX_ITEMS:
-        raise ScenarioError(f"{source}:1: the aliases (*name) expand to more than {MAX_ITEMS} "
-                            "items; write the values out")
+    if size > max_items:
+        raise error(f"{source}:1: the file expands to more than {max_items:,} {what} (aliases "
+                    "counted each time they are used); write fewer values out")
     if _bad_text(data):
-        raise ScenarioError(f"{source}:1: the text holds a character that is not valid "
+        raise error(f"{source}:1: the text holds a character that is not valid "
                             "Unicode (a lone surrogate such as \\ud800)")
     return data, lines
 

@@ -71,18 +71,41 @@ class WriteLock:
 @contextlib.contextmanager
 def folder_lock(folder: Path):
     """Hold an exclusive lock on a sweep's output folder (fcntl.flock on
-    .sweep.lock, which records the holder's process id); yields the lock's path."""
+    .sweep.lock, which records the holder's process id) and remove the lock file
+    when done; yields the lock's path. The lock is on the file at that name when
+    it was taken (a file removed meanwhile by its previous holder is taken anew)."""
     path = Path(folder) / SWEEP_LOCK
-    fd = _open_lock_file(path, SweepError)
-    try:
+    for _ in range(10):
+        fd = _open_lock_file(path, SweepError)
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
-            raise SweepError(f"{folder}: another sweep is running in this folder (it holds "
-                             f"{SWEEP_LOCK}); wait for it to finish or choose another output "
-                             "folder") from None
+            os.close(fd)
+            raise SweepError(f"{folder}: another sweep is running in this folder"
+                             f"{_lock_owner(path)} (it holds {SWEEP_LOCK}); wait for it to "
+                             "finish or choose another output folder") from None
+        try:
+            same = os.fstat(fd).st_ino == os.lstat(path).st_ino
+        except FileNotFoundError:
+            same = False
+        if same:
+            break
+        os.close(fd)
+    else:
+        raise SweepError(f"{folder}: could not take the lock {SWEEP_LOCK} (it keeps changing)")
+    try:
         os.ftruncate(fd, 0)
         os.pwrite(fd, f"{os.getpid()}\n".encode(), 0)
         yield path
     finally:
+        with contextlib.suppress(OSError):
+            path.unlink()
         os.close(fd)
+
+
+def _lock_owner(path: Path) -> str:
+    try:
+        pid = int(path.read_text().split()[0])
+    except (OSError, ValueError, IndexError):
+        return ""
+    return f" (process {pid})"

@@ -1,0 +1,128 @@
+"""Text the `sojourn` command prints: pure functions from results to lines.
+
+Nothing here reads files or imports the heavy stages, so `sojourn --help`
+stays fast; the command (cli.py) gathers the data and prints these lines."""
+from __future__ import annotations
+
+import json
+
+
+def num(value, digits=7) -> str:
+    """A number for a table cell ('—' when missing)."""
+    return "—" if value is None else f"{value:.{digits}g}"
+
+
+def format_check(scenario, setup) -> list:
+    """What `check` reports about a built scenario: one line per stage, then the findings."""
+    info, g, units = setup.packet, setup.grid, scenario.unit_system
+    needed = 2 * (abs(info.k0) + 6 * info.sigma_k)
+    lines = [
+        f"scenario   {scenario.source}: {scenario.title}",
+        f"units      {units.name} (length {units.length}, energy {units.energy}, time {units.time}); "
+        f"mass {scenario.mass} m_e",
+        f"potential  {setup.potential.describe()}",
+        f"grid       {g.points} points on [{g.left:g}, {g.right:g}), dx = {g.dx:.4g}; "
+        f"k_max = {g.k_max:.4g} (packet needs ≥ {needed:.4g})",
+        f"packet     centre {info.center:g}, width {info.width:g}, k₀ = {info.k0:.5g}, "
+        f"σ_k = {info.sigma_k:.4g} (k₀/σ_k = {info.k_ratio:.3g}); E₀ = {info.energy:.6g}, "
+        f"⟨E⟩ = {info.mean_energy:.6g} {units.energy}; v₀ = {info.group_velocity:.4g}",
+        f"time       dt = {setup.dt:.4g} {units.time}{' (chosen)' if setup.dt_chosen else ''}, "
+        f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_max+ΔV)/ħ = "
+        f"{setup.grid_phase:.3g} (limit 2π, safe below π); scheme {scenario.evolve.scheme}",
+        f"recording  every {setup.record_steps} steps ({setup.record_steps * setup.dt:.4g} "
+        f"{units.time}), {setup.snapshots} snapshots; samples every {setup.sample_steps} steps",
+        f"measure    reference {setup.reference:g}; detectors "
+        f"{', '.join(f'{d:g}' for d in setup.detectors) or 'none'}; region "
+        f"{setup.region if setup.region else 'none'}",
+    ]
+    lines += [f"{f.level:<10} {f}" for f in setup.findings]
+    n_err = len(setup.errors())
+    lines.append("ok: the scenario can run" if not n_err else
+                 f"{n_err} problem(s) would stop `sojourn run`")
+    return lines
+
+
+def format_inspect(info: dict) -> list:
+    """What `inspect` reports about a run file (from `describe_runfile`)."""
+    u = info["units"]
+    t_last = "—" if info["t_last"] is None else f"{info['t_last']:g}"
+    lines = [f"{info['file']}: {info['title']}",
+             f"  status {info['status']}, format {info['format_version']}, written by sojourn "
+             f"{info['sojourn_version']} on {info['created']}",
+             f"  units: length {u.get('length')}, time {u.get('time')}, energy {u.get('energy')}",
+             f"  {info['grid_points']} grid points, {info['snapshots']} snapshots up to t = "
+             f"{t_last} {u.get('time')}, dt = {info['dt']:g}, scheme {info['scheme']}",
+             "  last recording: " + ", ".join(f"{k} = {v:.6g}" for k, v in info["final"].items()
+                                              if k != "t"),
+             f"  FFT {info['provenance'].get('fft')}, CPU {info['provenance'].get('cpu')}"]
+    if info["analysis"]:
+        lines.append("  holds a saved delay analysis (/analysis)")
+    return lines
+
+
+def format_delay_report(report, moves=None) -> list:
+    """The delay report as lines of text: one table per channel, warnings below."""
+    lines = [f"{report.file}  (times in {report.units.get('time', '')})"]
+    for ch in report.channels():
+        lines += ["", f"{ch.channel}: probability {ch.probability:.6g} (detector flux "
+                      f"{num(ch.probability_flux, 6)}, spectrum {num(ch.probability_spectral, 6)}; "
+                      f"theory {num(ch.predicted_probability, 6)}); reference: "
+                      f"{'filtered' if ch.filtered else 'free'} packet",
+                  f"  {'method':<10}{'measured':>14}{'predicted':>14}{'deviation':>12}"
+                  f"{'relative':>11}{'error bar':>11}"]
+        for method, r in ch.measured.items():
+            rel = "—" if r.relative is None else f"{r.relative:.2e}"
+            err = "—" if r.error is None else f"±{r.error:.2g}"
+            lines.append(f"  {method:<10}{num(r.delay):>14}{num(r.predicted):>14}"
+                         f"{num(r.deviation, 3):>12}{rel:>11}{err:>11}")
+        lines.append(f"  phase delay at E₀ (Wigner) {num(ch.wigner)}; flux-weighted ⟨τ⟩_w "
+                     f"{num(ch.packet)}")
+    d = report.dwell
+    if d.get("measured") is not None:
+        lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "
+                      f"{num(d['measured'])}, packet-averaged Büttiker {num(d['predicted'])}"]
+    if moves:
+        lines += ["", "convergence (how far each delay moves):"]
+        lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "
+                  f"error bar ±{m['error']:.2g}" for key, m in moves.items()]
+    if report.warnings:
+        lines += [""] + [f"warning: {w}" for w in report.warnings]
+    return lines
+
+
+def format_bench(results, backend: str, single: bool) -> list:
+    """The `bench` table: steps per second against the FFT limit per grid size."""
+    lines = [f"FFT {backend}, {'single' if single else 'double'} precision; the FFT "
+             "limit is a bare planned FFT pair plus two multiplies",
+             f"{'points':>8} {'threads':>7} {'steps/s':>10} {'limit/s':>10} {'fraction':>8} "
+             f"{'unsampled':>9} {'sampled every':>13} {'point-steps/s':>13}"]
+    lines += [f"{r.points:>8} {r.threads:>7} {r.steps_per_second:>10.4g} "
+              f"{r.limit_steps_per_second:>10.4g} {r.fraction:>8.2f} "
+              f"{r.propagator_fraction:>9.2f} {r.sample_steps:>13} "
+              f"{r.point_steps_per_second:>13.3g}" for r in results]
+    lines += ["fraction: of the FFT limit, with the run loop's sampling at its default rate "
+              "(unsampled: the propagator alone).",
+              "A run of N points and S steps takes about N·S / (point-steps/s) seconds here "
+              "(plus writing snapshots)."]
+    return lines
+
+
+def describe_runfile(rf, path) -> dict:
+    """What `inspect` shows of an open run file, as plain data (for --json too)."""
+    attrs = rf.attrs
+    obs = rf.observables()
+    n = len(rf)
+    out = {
+        "file": str(path), "status": rf.status, "title": str(attrs.get("title", "")),
+        "format_version": int(attrs["format_version"]),
+        "sojourn_version": str(attrs.get("sojourn_version", "")),
+        "created": str(attrs.get("created", "")), "units": rf.units,
+        "provenance": json.loads(attrs.get("provenance", "{}")),
+        "grid_points": rf.points,
+        "snapshots": n, "t_last": float(obs["t"][-1]) if n else None,
+        "dt": float(attrs["dt"]), "scheme": str(attrs["scheme"]),
+        "detectors": [float(d) for d in rf.samples()["detectors"]],
+        "final": {k: float(v[-1]) for k, v in obs.items() if len(v)},
+        "analysis": rf.analysis() is not None,
+    }
+    return out
