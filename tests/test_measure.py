@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from sojourn import cli
-from sojourn.measure.core import measure_delays, save_report
+from sojourn.measure import measure_delays
+from sojourn.measure.report import save_report
 from sojourn.store.runfile import RunFile
 
 FREE = """

@@ -315,7 +315,8 @@ def format_delay_report(report, moves=None) -> list:
 
 
 def cmd_delay(args) -> int:
-    from .measure import core as measure
+    from . import measure
+    from .measure.report import save_report    # until store.save_analysis is merged
     moves = None
     if args.verify:
         result = _verify(args.file)
@@ -323,7 +324,7 @@ def cmd_delay(args) -> int:
     else:
         report = measure.measure_delays(args.file, reference_run=args.reference_run)
     if args.save:
-        measure.save_report(args.file, report)
+        save_report(args.file, report)
     if args.json:
         out = report.to_dict()
         if moves is not None:
@@ -350,7 +351,7 @@ def add_delay(sub) -> None:
 
 
 def demo_delay(run_path, out_folder, args) -> None:
-    from .measure import core as measure
+    from . import measure
     for line in format_delay_report(measure.measure_delays(run_path)):
         _say(line)
 

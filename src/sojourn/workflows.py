@@ -20,7 +20,7 @@ from .engine.loop import evolve
 from .engine.propagate import ORDER
 from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
-from .measure.core import DelayReport, measure_delays
+from .measure import DelayReport, measure_delays
 from .store.paths import output_path
 from .store.runfile import RunFile, RunWriter
 from .theory.solver import synthesize as synthesize_states

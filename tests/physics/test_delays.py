@@ -14,7 +14,7 @@ from scipy.integrate import quad
 from scipy.special import erfc
 
 from sojourn.build import build
-from sojourn.measure.core import measure_delays
+from sojourn.measure import measure_delays
 from sojourn.workflows import verify
 from sojourn.workflows import run as execute
 from sojourn.config.scenario import loads, with_changes
