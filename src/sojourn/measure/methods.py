@@ -29,7 +29,7 @@ from .spectra import (channel_spectrum, incident_amplitude, mean_arrival, outgoi
 
 LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
 PASSAGE_GAP = 4.0       # widths between the incident and reflected passages at a detector
-HOLE = 1e-2             # R(k) below this share of both its neighbours' heights: a spectral zero
+HOLE = 1e-2             # P(k) below this share of its packet mean, in a dip: a spectral zero
 RELEVANT = 1e-6         # incident weight (per its peak) below which P(k) is not looked at
 TAIL_WARN = 1e-4        # flux at the end of the run, per its peak, that calls for a warning
 
@@ -78,7 +78,8 @@ def channel_context(run: ForwardRun, stats: dict, channel: str, warnings: list,
     with np.errstate(invalid="ignore"):
         spectrum = Spectrum(k, info.level + (hbar * k) ** 2 / (2 * m), tau, prob, weight,
                             trusted=~spectral_holes(prob, weight))
-    share = np.where(np.isfinite(prob), prob, 0.0)
+    # R(k), T(k) lie in [0, 1]: beyond that P is numerical noise (where |ψ̃₀|² is tiny)
+    share = np.clip(np.where(np.isfinite(prob), prob, 0.0), 0.0, 1.0)
     packet_p = float(np.trapezoid(weight * share, k) / np.trapezoid(weight, k))
     filtered = abs(1.0 - packet_p) > 1e-4
     if not filtered:
@@ -89,21 +90,37 @@ def channel_context(run: ForwardRun, stats: dict, channel: str, warnings: list,
         # |t| = √(T k/q): T is a flux ratio, the reference carries amplitudes
         q = outgoing_wavenumber(run, k)
         amplitude = np.sqrt(share * k / np.where(q > 0, q, np.inf))
+    if filtered:
+        # r(k) passes through a zero with a change of sign, not a kink: |r| would give the
+        # reference slow tails in time that a finite run cuts
+        amplitude = amplitude * zero_crossings(prob, ~spectrum.trusted)
     return ChannelContext(channel, word, final, stats, usable, k, weight, spectrum,
                           float(np.trapezoid(outgoing, k)), filtered, share, amplitude,
                           reference, warnings)
 
 
 def spectral_holes(prob, weight) -> np.ndarray:
-    """Where P(k) dips below HOLE of the heights on both sides of it (a zero of
-    r(k) or t(k) inside the band: its phase cannot be measured there), among
-    the components that carry weight (P is noise where |ψ̃₀|² is below
-    RELEVANT of its peak)."""
+    """Where P(k) dips, between higher values on both sides, below HOLE of its
+    mean over the packet (a zero of r(k) or t(k) inside the band: the phase is
+    lost in the numerical error of the amplitude there). Only components with
+    |ψ̃₀|² above RELEVANT of its peak are looked at (elsewhere P is noise)."""
     relevant = weight >= RELEVANT * np.max(weight)
     p = np.where(np.isfinite(prob) & relevant, prob, 0.0)
+    mean = float(np.sum(weight * p) / np.sum(weight))
     from_left = np.maximum.accumulate(p)
     from_right = np.maximum.accumulate(p[::-1])[::-1]
-    return relevant & (p < HOLE * np.minimum(from_left, from_right))
+    dip = p < np.minimum(from_left, from_right)
+    return relevant & dip & (p < HOLE * mean)
+
+
+def zero_crossings(prob, holes) -> np.ndarray:
+    """±1 across the band, changing sign at the lowest P(k) of every run of
+    `holes` (where a real amplitude passes through zero)."""
+    sign = np.ones(len(prob))
+    edges = np.flatnonzero(np.diff(np.concatenate(([0], holes.astype(int), [0]))))
+    for start, stop in zip(edges[::2], edges[1::2]):
+        sign[start + int(np.argmin(prob[start:stop])) + 1:] *= -1
+    return sign
 
 
 # ----------------------------------------------------------------------------------------
@@ -150,7 +167,8 @@ def arrival(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Meth
     """The mean arrival time of the outgoing flux at a detector minus the
     reference's; `error_tail` is the shift the flux after the end of the run
     would bring (exponential continuation of the measured and the reference
-    flux, carrying at least the probability that has not passed the detector)."""
+    flux; the measured one carrying at least the probability still between
+    the potential and the detector at the end)."""
     info, s = run.info, run.samples
     detectors = np.asarray(s["detectors"], dtype=float)
     if channel == "reflection":
@@ -187,24 +205,31 @@ def arrival(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Meth
         ref_flux = reference_run_flux(run, ctx.reference, channel, xd, tw, ctx.warnings)
     if ref_flux is None:
         ref_flux = reference_flux(run, channel, xd, tw, ctx.k, ctx.amplitude)
-    ref_arrival, ref_total = mean_arrival(tw, ref_flux)
+    ref_arrival, _ = mean_arrival(tw, ref_flux)
     if not (math.isfinite(measured) and math.isfinite(ref_arrival)):
         ctx.warn(f"the {ctx.word} flux at the detector {where:g} integrates to zero: "
                  "no arrival delay")
         return None
-    # the probability the reference carries in all (P(k) = |amplitude|² q/k for transmission)
-    expected = float(np.trapezoid(ctx.weight * ctx.share, ctx.k)) if ctx.reference is None \
-        else ref_total
-    bias = tail_shift(tw, fw, ctx.final - total) - tail_shift(tw, ref_flux, expected - ref_total)
+    # what has not passed the detector by the end: between it and the potential
+    between = (run.x > xd) & (run.x < run.x_r) if channel == "reflection" else \
+        (run.x > run.x_t) & (run.x < xd)
+    last = np.abs(run.psi(len(run.times) - 1)[between]) ** 2
+    missing = float(last.sum() * run.dx)
+    own, theirs = tail_shift(tw, fw, missing), tail_shift(tw, ref_flux, 0.0)
     tail = abs(fw[-1]) / max(float(np.max(np.abs(fw))), 1e-300)
     if tail > TAIL_WARN:
         ctx.warn(f"the {ctx.word} flux at the detector {where:g} has not died out by the end "
                  f"of the run ({tail:.2%} of its peak): the arrival delay misses its tail; "
                  "run longer")
-    if not math.isfinite(bias):
+    if not math.isfinite(own):
         ctx.warn(f"the {ctx.word} flux at the detector {where:g} still rises at the end of the "
                  "run: the bias of its missing tail cannot be estimated and no error bar "
+                 "covers it; run longer")
+    elif not math.isfinite(theirs):
+        ctx.warn(f"the reference flux at the detector {where:g} has not died out within the "
+                 "run: the bias of its missing tail cannot be estimated and no error bar "
                  "covers it")
+    bias = own - theirs
     return MethodResult(measured - ref_arrival, probability=total, detector=where,
                         error_tail=abs(bias) if math.isfinite(bias) else None)
 
@@ -229,7 +254,7 @@ def spectral(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Met
         if share > 1e-6:
             at = sp.energy[hole][np.argmin(sp.probability[hole])]
             ctx.warn(f"the {ctx.word} spectrum has a zero near E = {at:.4g} (its probability "
-                     f"falls below {HOLE:.0%} of the heights on either side): the phase is "
+                     f"falls below {HOLE:.0%} of its mean over the packet): the phase is "
                      f"ill-conditioned there, so τ across {share:.2%} of the incident weight "
                      "is interpolated from its neighbours in the spectral delay")
     use = good | hole

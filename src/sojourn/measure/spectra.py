@@ -10,6 +10,8 @@ import numpy as np
 from ..model import packets
 from .frame import K_SPAN, ForwardRun
 
+NEGLIGIBLE = 1e-6       # flux per its peak below which it has died out
+
 
 def incident_amplitude(k, info: packets.PacketInfo) -> np.ndarray:
     """ψ̃₀(k) = (2π)^(-1/2) ∫ ψ₀ e^{−ikx} dx of the Gaussian of PHYSICS §2:
@@ -87,13 +89,14 @@ def tail_shift(t, flux, missing: float) -> float:
     is added: the tail is continued as J(t_end)·e^{−(t−t_end)/λ}, λ from the
     decay over the last samples, carrying at least the probability `missing`
     (what the channel holds beyond what passed the detector). NaN when the
-    flux still rises at the end (no estimate)."""
+    flux still rises at the end (no estimate); a flux below NEGLIGIBLE of its
+    peak has died out."""
     t, flux = np.asarray(t, float), np.asarray(flux, float)
     mean, total = mean_arrival(t, flux)
     if not math.isfinite(mean) or total <= 0:
         return math.nan
     end, lam = float(flux[-1]), 0.0
-    if end > 0:
+    if end > NEGLIGIBLE * float(np.max(np.abs(flux))):
         tail = flux[-max(3, len(flux) // 20):]
         if np.any(tail <= 0) or tail[-1] >= tail[0]:
             return math.nan
