@@ -90,3 +90,67 @@ def test_reference_run_gives_the_same_delays_as_the_exact_free_evolution(run_sce
     _, bare = run_scenario(free.replace("DETECTOR", "-100.0"), "bare.yaml")
     assert cli.main(["delay", str(path), "--reference-run", str(bare)]) == 0
     assert "has no detector" in capsys.readouterr().out
+
+
+def strict(text: str):
+    """json.loads that refuses NaN and Infinity (not JSON: RFC 8259, Sec. 6)."""
+    def refuse(token):
+        raise ValueError(f"non-JSON token {token}")
+    return json.loads(text, parse_constant=refuse)
+
+
+OPAQUE = """
+units: atomic
+grid: {span: [-300.0, 300.0], points: 1024}
+potential:
+  - barrier: {start: 0.0, end: 10.0, height: 5.0}
+packet: {center: CENTER, width: 10.0, energy: 0.5}
+evolve: {duration: 250.0, dt: 0.05}
+record: {every: 10.0}
+measure: {detectors: [-100.0, 100.0]}
+"""
+
+
+def test_packet_overlapping_the_potential_is_not_called_leakage(run_scenario):
+    # an opaque barrier (κa = 30: T ~ e^{−60}, Griffiths 2nd ed., Problem 2.33) with the
+    # packet's centre 2σ before it: 2.3% of the packet sits at or beyond the barrier at t = 0
+    # (Gaussian tail, ½erfc(√2)); what leaves on the far side was never transmitted
+    _, path = run_scenario(OPAQUE.replace("CENTER", "-20.0"), "overlap.yaml")
+    report = measure_delays(path)
+    assert not any("leakage" in w for w in report.warnings)
+    overlap = [w for w in report.warnings if "overlaps the potential" in w]
+    assert len(overlap) == 1 and "2.28%" in overlap[0]
+    # the same barrier with the packet far away: nothing gets through, and nothing is said
+    # about a transmitted channel but why it is not measured
+    _, far = run_scenario(OPAQUE.replace("CENTER", "-150.0"), "far.yaml")
+    clean = measure_delays(far)
+    assert clean.transmission is None
+    assert not any("leakage" in w or "overlaps" in w for w in clean.warnings)
+    assert any(n.startswith("transmission not measured") for n in clean.notes)
+
+
+def test_no_runtime_warning_and_strict_json(run_scenario, capsys):
+    # numpy RuntimeWarnings never reach the user; every missing number is null, not NaN
+    import warnings
+    _, free = run_scenario(FREE)
+    _, step = run_scenario(STEP.replace("DETECTOR", "-100.0"), "step.yaml")
+    _, overlap = run_scenario(OPAQUE.replace("CENTER", "-20.0"), "overlap.yaml")
+    for path in (free, step, overlap):
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", RuntimeWarning)
+            report = measure_delays(path)
+        strict(json.dumps(report.to_dict(), allow_nan=False))
+        assert cli.main(["delay", str(path), "--json"]) == 0
+        strict(capsys.readouterr().out)
+    # the free run has a zero prediction: its relative deviation is missing, as null
+    tr = measure_delays(free).transmission.to_dict(measure_delays(free).dwell)
+    assert tr["measured"]["centroid"]["predicted"] == 0.0
+    assert tr["measured"]["centroid"]["relative"] is None
+
+
+def test_arguments_are_checked_up_front(tmp_path):
+    from sojourn.errors import MeasureError
+    with pytest.raises(MeasureError, match="run-file reader"):
+        measure_delays(42)
+    with pytest.raises(MeasureError, match="reference run"):
+        measure_delays(tmp_path / "x.h5", reference_run=3.5)

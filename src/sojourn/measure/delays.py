@@ -66,11 +66,15 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
     (None, with the reason `why`, when there is none)."""
     warnings = health.before_measuring(run, status)
     stats = snapshot_stats(run)
-    channels = {}
+    channels, notes = {}, []
     for channel, side in (("reflection", "left"), ("transmission", "right")):
         final = float(run.observables[f"P_{side}"][-1] + run.observables[f"absorbed_{side}"][-1])
-        channels[channel] = measure_channel(run, stats, channel, warnings, ref) \
-            if final > health.CHANNEL_MIN else None
+        if final > health.CHANNEL_MIN:
+            channels[channel] = measure_channel(run, stats, channel, warnings, ref)
+        else:
+            channels[channel] = None
+            notes.append(f"{channel} not measured: its probability {max(final, 0.0):.2g} is "
+                         f"below {health.CHANNEL_MIN:g}, no outgoing packet to time")
     if prediction is None:
         warnings.append(f"no theory prediction: {why}")
     else:
@@ -85,7 +89,7 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
     warnings += health.after_measuring(run, stats, channels["reflection"],
                                        channels["transmission"])
     return DelayReport(path, units, channels["reflection"], channels["transmission"], dwell,
-                       warnings, run.info.energy)
+                       warnings, run.info.energy, notes)
 
 
 def measure_channel(run: ForwardRun, stats: dict, channel: str, warnings: list,

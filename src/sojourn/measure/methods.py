@@ -71,8 +71,8 @@ def channel_context(run: ForwardRun, stats: dict, channel: str, warnings: list,
     index = int(np.nonzero(usable)[0][-1]) if usable.any() else len(run.times) - 1
     if not usable.any():
         warnings.append(f"the {word} packet has not separated from the potential (or has "
-                        f"reached the box edge or absorber) in any snapshot; its delays are "
-                        f"taken from the last snapshot and cannot be trusted")
+                        f"reached the box edge or absorber) in any snapshot: no centroid delay, "
+                        f"and its spectrum is taken from the last snapshot and cannot be trusted")
     _, outgoing, tau, prob, _ = channel_spectrum(run, run.psi(index), float(run.times[index]),
                                                  channel, k)
     with np.errstate(invalid="ignore"):
@@ -145,6 +145,9 @@ def centroid(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Met
     else:
         q0 = float(outgoing_wavenumber(run, info.k0))
         if q0 <= 0:
+            ctx.warn("the transmitted channel is closed at the central energy E₀: no "
+                     "transmitted centroid delay (it is measured in units of the outgoing "
+                     "group velocity there)")
             return None
         qk = outgoing_wavenumber(run, k)
         vq = float(np.trapezoid(w * hbar * qk / m, k) / np.trapezoid(w, k))
@@ -341,7 +344,8 @@ class MethodRegistry(dict):
 
 
 METHODS = MethodRegistry(
-    centroid=Method(centroid, "centroid_delay", ("centroid drifts across the snapshots used",)),
+    centroid=Method(centroid, "centroid_delay", ("centroid drifts across the snapshots used",
+                                                 "channel closed at E₀")),
     arrival=Method(arrival, "flux_delay",
                    ("no detector on the outgoing side", "detector too close to the potential",
                     "too few flux samples", "zero flux", "flux not died out",

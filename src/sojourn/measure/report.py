@@ -131,6 +131,7 @@ class DelayReport:
     dwell: dict
     warnings: list = field(default_factory=list)
     energy0: Optional[float] = None
+    notes: list = field(default_factory=list)     # facts that cast no doubt (a channel not measured)
 
     def channels(self) -> list:
         return [c for c in (self.reflection, self.transmission) if c is not None]
@@ -141,6 +142,7 @@ class DelayReport:
             "reflection": self.reflection.to_dict(self.dwell) if self.reflection else None,
             "transmission": self.transmission.to_dict(self.dwell) if self.transmission else None,
             "warnings": list(self.warnings),
+            "notes": list(self.notes),
         }
 
 
