@@ -154,3 +154,28 @@ def test_arguments_are_checked_up_front(tmp_path):
         measure_delays(42)
     with pytest.raises(MeasureError, match="reference run"):
         measure_delays(tmp_path / "x.h5", reference_run=3.5)
+
+
+def test_a_method_is_one_function_and_one_registry_entry(run_scenario, monkeypatch):
+    # the recipe of DEVELOPERS.md, done in a test: a centroid read at the FIRST separated
+    # snapshot instead of the last, compared with the theory's centroid average
+    from sojourn.measure import METHODS
+    from sojourn.measure.methods import Method, MethodResult
+
+    def early_centroid(run, channel, ctx):
+        if channel != "reflection" or not ctx.usable.any():
+            return None
+        i = int(ctx.usable.nonzero()[0][0])
+        t = run.times[i]
+        mirror = 2 * run.x_r - run.info.center - run.info.group_velocity * t
+        return MethodResult(float((ctx.stats["x_out"][i] - mirror) / run.info.group_velocity))
+
+    monkeypatch.setitem(METHODS, "early", Method(early_centroid, "centroid_delay", ()))
+    _, path = run_scenario(STEP.replace("DETECTOR", "-100.0"), "step.yaml")
+    ch = measure_delays(path).reflection
+    assert list(ch.measured) == ["centroid", "arrival", "spectral", "early"]
+    early, late = ch.measured["early"], ch.measured["centroid"]
+    assert early.predicted == late.predicted
+    # at E₀ = V₀/2 the step delay is 2ħ/V₀ = 2 (Griffiths 2nd ed., Problem 2.34: τ =
+    # ħ/√(E(V₀−E))); the first separated snapshot already gives it to a few percent
+    assert early.delay == pytest.approx(2.0, rel=5e-2)

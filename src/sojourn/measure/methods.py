@@ -23,11 +23,11 @@ import numpy as np
 
 from ..model import packets
 from .frame import ForwardRun, separated, side_stats, snapshot_stats
+from .health import LOST_WARN
 from .report import MethodResult, Spectrum
 from .spectra import (channel_spectrum, incident_amplitude, mean_arrival, outgoing_wavenumber,
                       packet_band, reference_flux, tail_shift)
 
-LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
 PASSAGE_GAP = 4.0       # widths between the incident and reflected passages at a detector
 HOLE = 1e-2             # P(k) below this share of its packet mean, in a dip: a spectral zero
 RELEVANT = 1e-6         # incident weight (per its peak) below which P(k) is not looked at
@@ -137,6 +137,9 @@ def centroid(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Met
     info, hbar, m, k = run.info, run.hbar, run.mass, ctx.k
     usable, stats = ctx.usable, ctx.stats
     w = ctx.weight * ctx.share
+    if not np.trapezoid(w, k) > 0:
+        ctx.warn(f"the {ctx.word} spectrum is empty across the packet's band: no centroid delay")
+        return None
     t = run.times[usable]
     if channel == "reflection":
         v_mean = float(np.trapezoid(w * hbar * k / m, k) / np.trapezoid(w, k))
@@ -345,7 +348,7 @@ class MethodRegistry(dict):
 
 METHODS = MethodRegistry(
     centroid=Method(centroid, "centroid_delay", ("centroid drifts across the snapshots used",
-                                                 "channel closed at E₀")),
+                                                 "channel closed at E₀", "empty spectrum")),
     arrival=Method(arrival, "flux_delay",
                    ("no detector on the outgoing side", "detector too close to the potential",
                     "too few flux samples", "zero flux", "flux not died out",
