@@ -487,14 +487,43 @@ def test_arrival_error_tail_covers_a_run_cut_short(tmp_path):
         text = HETERO.replace("DURATION", f"{duration:.1f}")
         return measure_delays(run(tmp_path, f"d{duration}", text)).reflection.measured["arrival"]
     converged = arrival(1100)
-    assert converged.error_tail < 1e-6
+    # what is left is the bound on the incident tail still crossing the detector (3e-4 fs)
+    assert converged.error_tail < 1e-3
     for duration in (700, 800):
         cut = arrival(duration)
         bias = abs(cut.delay - converged.delay)
-        assert bias > 1e-3
-        assert bias <= cut.error_tail <= 2 * bias, duration
+        assert bias > 1e-2
+        assert bias <= cut.error_tail <= 2 * bias + converged.error_tail, duration
         # the error bar the reruns give (discretisation) is widened by the tail term
         assert cut.error is None
         cut.error = 1e-4
         assert cut.error == pytest.approx(1e-4 + cut.error_tail)
         assert cut.to_dict()["error_tail"] == pytest.approx(cut.error_tail)
+
+
+def test_weak_reflection_warns_of_the_incident_tail_at_its_detector(tmp_path):
+    # a Fermi-shaped step crossed at 1.5 V₀ reflects 0.16%; at a detector 107 from the step
+    # the incident packet's Gaussian tail still crossing it after the split (2e-6 of it) is
+    # not negligible against that: the arrival delay was 0.5% off with no warning (measured
+    # before this fix). The bias bound enters error_tail; a detector nearer the packet's
+    # start removes the overlap (common practice, no source)
+    text = """
+units: atomic
+grid: {span: [-700.0, 500.0], points: 2048}
+potential:
+  - smooth_step: {at: 0.0, height: 1.0, width: 0.5}
+packet: {center: -200.0, width: 20.0, energy: 1.5}
+evolve: {duration: 420.0, dt: 0.05}
+absorber: {width: 60.0}
+record: {every: 20.0}
+measure: {detectors: [DETECTOR]}
+"""
+    near = measure_delays(run(tmp_path, "near", text.replace("DETECTOR", "-106.9")))
+    assert any("passages overlap" in w for w in near.warnings)
+    r = near.reflection.measured["arrival"]
+    assert abs(r.deviation) > 1e-3 * abs(r.predicted)
+    assert abs(r.deviation) <= r.error_tail
+    far = measure_delays(run(tmp_path, "far", text.replace("DETECTOR", "-170.0")))
+    assert not any("passages overlap" in w for w in far.warnings)
+    r = far.reflection.measured["arrival"]
+    assert r.delay == pytest.approx(r.predicted, rel=1e-3)

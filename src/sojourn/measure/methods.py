@@ -31,6 +31,7 @@ from .spectra import (channel_spectrum, incident_amplitude, mean_arrival, outgoi
 PASSAGE_GAP = 4.0       # widths between the incident and reflected passages at a detector
 HOLE = 1e-2             # P(k) below this share of its packet mean, in a dip: a spectral zero
 RELEVANT = 1e-6         # incident weight (per its peak) below which P(k) is not looked at
+OVERLAP_WARN = 1e-3     # arrival bias from overlapping passages, per σ/v₀, that calls for a warning
 TAIL_WARN = 1e-4        # flux at the end of the run, per its peak, that calls for a warning
 
 
@@ -171,8 +172,9 @@ def centroid(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Met
 
 def arrival(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[MethodResult]:
     """The mean arrival time of the outgoing flux at a detector minus the
-    reference's; `error_tail` is the shift the flux after the end of the run
-    would bring (exponential continuation of the measured and the reference
+    reference's; `error_tail` is the bias from the incident packet's tail
+    still crossing a reflection detector after the split, plus the shift the
+    flux after the end of the run would bring (exponential continuation of the measured and the reference
     flux; the measured one carrying at least the probability still between
     the potential and the detector at the end)."""
     info, s = run.info, run.samples
@@ -192,13 +194,23 @@ def arrival(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Meth
     ts = np.asarray(s["t"], float)
     flux = s["flux"][:, pick] * (-1 if channel == "reflection" else 1)
     sel = np.ones_like(ts, dtype=bool)
+    overlap = 0.0
     if channel == "reflection":
         split = (run.x_r - info.center) / info.group_velocity
+        width = float(packets.free_width(info.width, split, run.hbar, run.mass))
         gap = 2 * (run.x_r - xd)
-        if gap < 2 * PASSAGE_GAP * float(packets.free_width(info.width, split, run.hbar,
-                                                            run.mass)):
+        # the incident probability still before the detector at the split crosses it
+        # later, against the reflected flux: a bias of about P·(round trip)/R
+        behind = 0.5 * math.erfc((info.center + info.group_velocity * split - xd)
+                                 / (math.sqrt(2) * width))
+        overlap = behind * gap / info.group_velocity / max(ctx.final, 1e-300)
+        scale = info.width / info.group_velocity
+        if gap < 2 * PASSAGE_GAP * width or overlap > OVERLAP_WARN * scale:
             ctx.warn(f"the detector at {where:g} is too close to the potential: incident and "
-                     "reflected passages overlap there")
+                     f"reflected passages overlap there ({behind:.2g} of the incident packet "
+                     f"crosses it after the split, against a reflected {ctx.final:.2g}; "
+                     f"arrival bias up to {overlap:.2g}); a detector nearer the packet's start "
+                     "separates them")
         sel = ts >= split
     if sel.sum() <= 2:
         ctx.warn(f"fewer than three flux samples after the incident passage at the detector "
@@ -237,7 +249,7 @@ def arrival(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Meth
                  "covers it")
     bias = own - theirs
     return MethodResult(measured - ref_arrival, probability=total, detector=where,
-                        error_tail=abs(bias) if math.isfinite(bias) else None)
+                        error_tail=abs(bias) + overlap if math.isfinite(bias) else None)
 
 
 def spectral(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[MethodResult]:
