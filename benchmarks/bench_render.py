@@ -23,7 +23,7 @@ from pathlib import Path
 from sojourn.render import core as render
 from sojourn.build import build
 from sojourn.workflows import run as execute
-from sojourn.store.runfile import RunFile
+from sojourn.store import RunFile
 from sojourn.config.scenario import loads
 
 

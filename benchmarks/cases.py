@@ -30,7 +30,7 @@ from scipy.linalg import lapack
 from sojourn.model import packets
 from sojourn.build import build
 from sojourn.workflows import run as execute
-from sojourn.store.runfile import RunFile
+from sojourn.store import RunFile
 from sojourn.config.scenario import loads
 
 V0, SIGMA, E0 = 1.0, 20.0, 0.2

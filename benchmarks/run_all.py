@@ -252,7 +252,7 @@ def snapshot_cost(points, dt, rounds=5) -> dict:
     observables, the writer's snapshot call, and 100 propagator steps."""
     from sojourn.engine.propagate import Propagator
     from sojourn.engine.sampler import Sampler
-    from sojourn.store.runfile import RunWriter
+    from sojourn.store import RunWriter
     setup = build(cases.sojourn_scenario(points, dt, every=100 * dt))
     psi = setup.psi0()
     sampler = Sampler(setup)

@@ -43,7 +43,7 @@ def test_a_barrier_four_cells_wide_is_flagged_and_its_error_estimated(tmp_path):
     estimate = rendering_error(setup)["R"]
     # the run itself: its reflected probability against the closed form
     path = execute(setup, tmp_path / "b.h5")
-    from sojourn.store.runfile import RunFile
+    from sojourn.store import RunFile
     with RunFile(path) as rf:
         obs = rf.observables()
     measured = float(obs["P_left"][-1] + obs["absorbed_left"][-1])

@@ -6,8 +6,9 @@ import numpy as np
 import pytest
 
 from sojourn import cli
-from sojourn.measure.core import measure_delays, save_report
-from sojourn.store.runfile import RunFile
+from sojourn.measure import measure_delays
+from sojourn.store import save_analysis
+from sojourn.store import RunFile
 
 FREE = """
 units: atomic
@@ -52,7 +53,7 @@ def test_report_to_dict_is_json(run_scenario):
     _, path = run_scenario(FREE)
     report = measure_delays(path)
     json.dumps(report.to_dict())
-    save_report(path, report)
+    save_analysis(path, report.to_dict())
     with RunFile(path) as rf:
         assert rf.analysis() == json.loads(json.dumps(report.to_dict()))
 
@@ -89,3 +90,92 @@ def test_reference_run_gives_the_same_delays_as_the_exact_free_evolution(run_sce
     _, bare = run_scenario(free.replace("DETECTOR", "-100.0"), "bare.yaml")
     assert cli.main(["delay", str(path), "--reference-run", str(bare)]) == 0
     assert "has no detector" in capsys.readouterr().out
+
+
+def strict(text: str):
+    """json.loads that refuses NaN and Infinity (not JSON: RFC 8259, Sec. 6)."""
+    def refuse(token):
+        raise ValueError(f"non-JSON token {token}")
+    return json.loads(text, parse_constant=refuse)
+
+
+OPAQUE = """
+units: atomic
+grid: {span: [-300.0, 300.0], points: 1024}
+potential:
+  - barrier: {start: 0.0, end: 10.0, height: 5.0}
+packet: {center: CENTER, width: 10.0, energy: 0.5}
+evolve: {duration: 250.0, dt: 0.05}
+record: {every: 10.0}
+measure: {detectors: [-100.0, 100.0]}
+"""
+
+
+def test_packet_overlapping_the_potential_is_not_called_leakage(run_scenario):
+    # an opaque barrier (κa = 30: T ~ e^{−60}, Griffiths 2nd ed., Problem 2.33) with the
+    # packet's centre 2σ before it: 2.3% of the packet sits at or beyond the barrier at t = 0
+    # (Gaussian tail, ½erfc(√2)); what leaves on the far side was never transmitted
+    _, path = run_scenario(OPAQUE.replace("CENTER", "-20.0"), "overlap.yaml")
+    report = measure_delays(path)
+    assert not any("leakage" in w for w in report.warnings)
+    overlap = [w for w in report.warnings if "overlaps the potential" in w]
+    assert len(overlap) == 1 and "2.28%" in overlap[0]
+    # the same barrier with the packet far away: nothing gets through, and nothing is said
+    # about a transmitted channel but why it is not measured
+    _, far = run_scenario(OPAQUE.replace("CENTER", "-150.0"), "far.yaml")
+    clean = measure_delays(far)
+    assert clean.transmission is None
+    assert not any("leakage" in w or "overlaps" in w for w in clean.warnings)
+    assert any(n.startswith("transmission not measured") for n in clean.notes)
+
+
+def test_no_runtime_warning_and_strict_json(run_scenario, capsys):
+    # numpy RuntimeWarnings never reach the user; every missing number is null, not NaN
+    import warnings
+    _, free = run_scenario(FREE)
+    _, step = run_scenario(STEP.replace("DETECTOR", "-100.0"), "step.yaml")
+    _, overlap = run_scenario(OPAQUE.replace("CENTER", "-20.0"), "overlap.yaml")
+    for path in (free, step, overlap):
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", RuntimeWarning)
+            report = measure_delays(path)
+        strict(json.dumps(report.to_dict(), allow_nan=False))
+        assert cli.main(["delay", str(path), "--json"]) == 0
+        strict(capsys.readouterr().out)
+    # the free run has a zero prediction: its relative deviation is missing, as null
+    tr = measure_delays(free).transmission.to_dict(measure_delays(free).dwell)
+    assert tr["measured"]["centroid"]["predicted"] == 0.0
+    assert tr["measured"]["centroid"]["relative"] is None
+
+
+def test_arguments_are_checked_up_front(tmp_path):
+    from sojourn.errors import MeasureError
+    with pytest.raises(MeasureError, match="run-file reader"):
+        measure_delays(42)
+    with pytest.raises(MeasureError, match="reference run"):
+        measure_delays(tmp_path / "x.h5", reference_run=3.5)
+
+
+def test_a_method_is_one_function_and_one_registry_entry(run_scenario, monkeypatch):
+    # the recipe of DEVELOPERS.md, done in a test: a centroid read at the FIRST separated
+    # snapshot instead of the last, compared with the theory's centroid average
+    from sojourn.measure import METHODS
+    from sojourn.measure.methods import Method, MethodResult
+
+    def early_centroid(run, channel, ctx):
+        if channel != "reflection" or not ctx.usable.any():
+            return None
+        i = int(ctx.usable.nonzero()[0][0])
+        t = run.times[i]
+        mirror = 2 * run.x_r - run.info.center - run.info.group_velocity * t
+        return MethodResult(float((ctx.stats["x_out"][i] - mirror) / run.info.group_velocity))
+
+    monkeypatch.setitem(METHODS, "early", Method(early_centroid, "centroid_delay", ()))
+    _, path = run_scenario(STEP.replace("DETECTOR", "-100.0"), "step.yaml")
+    ch = measure_delays(path).reflection
+    assert list(ch.measured) == ["centroid", "arrival", "spectral", "early"]
+    early, late = ch.measured["early"], ch.measured["centroid"]
+    assert early.predicted == late.predicted
+    # at E₀ = V₀/2 the step delay is 2ħ/V₀ = 2 (Griffiths 2nd ed., Problem 2.34: τ =
+    # ħ/√(E(V₀−E))); the first separated snapshot already gives it to a few percent
+    assert early.delay == pytest.approx(2.0, rel=5e-2)

@@ -15,7 +15,7 @@ from scipy import integrate
 from sojourn import cli
 from sojourn.render import core as render
 from sojourn.model.packets import describe, free_evolution
-from sojourn.store.runfile import RunFile
+from sojourn.store import RunFile
 
 # A unit step met at E₀ = V₀/2 in atomic units (ħ = m = 1): our own test settings.
 STEP = """\

@@ -21,7 +21,7 @@ from sojourn.build import build
 from sojourn.cli import main
 from sojourn.workflows import run as execute
 from sojourn.errors import NonFinite
-from sojourn.store.runfile import RunFile, RunWriter, lock_path, partial_path
+from sojourn.store import RunFile, RunWriter, lock_path, partial_path
 from sojourn.errors import RunFileError
 from sojourn.config.scenario import loads
 from sojourn.errors import ScenarioError, SojournError
@@ -382,7 +382,7 @@ def test_an_energy_past_the_grid_nyquist_limit_is_refused(write_scenario, capsys
 
 def test_the_superblock_checksum_matches_hdf5s_own(run_scenario):
     # reference: the HDF5 library's checksum (Jenkins lookup3) in files it wrote
-    from sojourn.store.runfile import clear_write_flags, lookup3
+    from sojourn.store.repair import clear_write_flags, lookup3
     path = _complete_run(run_scenario)
     head = path.read_bytes()[:48]
     assert head[8] in (2, 3) and head[9] == 8

@@ -8,7 +8,7 @@ import pytest
 
 from sojourn.build import build
 from sojourn.config.scenario import load
-from sojourn.measure.core import measure_delays
+from sojourn.measure import measure_delays
 from sojourn.store import MemoryRun, RunFile, RunReader, partial_path
 from sojourn.workflows import run as execute, run_in_memory
 

@@ -164,7 +164,8 @@ VERBS.append(add_demo)
 # --- delay
 
 def cmd_delay(args) -> int:
-    from .measure import core as measure
+    from . import measure
+    from .store import save_analysis
     moves = None
     if args.verify:
         result = _verify(args.file)
@@ -172,7 +173,7 @@ def cmd_delay(args) -> int:
     else:
         report = measure.measure_delays(args.file, reference_run=args.reference_run)
     if args.save:
-        measure.save_report(args.file, report)
+        save_analysis(args.file, report.to_dict())
     if args.json:
         out = report.to_dict()
         if moves is not None:
@@ -199,7 +200,7 @@ def add_delay(sub) -> None:
 
 
 def demo_delay(run_path, out_folder, args) -> None:
-    from .measure import core as measure
+    from . import measure
     for line in format_delay_report(measure.measure_delays(run_path)):
         _say(line)
 

@@ -20,7 +20,7 @@ from .engine.loop import evolve
 from .engine.propagate import ORDER
 from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
-from .measure.core import DelayReport, measure_delays
+from .measure import DelayReport, measure_delays
 from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
 from .theory.states import synthesize as synthesize_states
 

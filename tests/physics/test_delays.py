@@ -14,7 +14,7 @@ from scipy.integrate import quad
 from scipy.special import erfc
 
 from sojourn.build import build
-from sojourn.measure.core import measure_delays
+from sojourn.measure import measure_delays
 from sojourn.workflows import verify
 from sojourn.workflows import run as execute
 from sojourn.config.scenario import loads, with_changes
@@ -118,7 +118,8 @@ def assert_each_method_meets_its_own(coarse, fine, own):
 def test_each_method_against_its_own_prediction_at_a_fifth_of_the_step(step_pair):
     coarse, fine = step_pair
     own = own_step_predictions(0.2)
-    # the averages differ by ~1.2e-3 here (PHYSICS §5), so the wrong one would fail
+    # the averages differ by ~1.2e-3 here (our own quadrature above), so the wrong one
+    # would fail
     assert abs(own["arrival"] / own["centroid"] - 1) > 1e-3
     assert_each_method_meets_its_own(coarse, fine, own)
     for method in ("centroid", "arrival", "spectral"):
@@ -131,7 +132,7 @@ def test_each_method_against_its_own_prediction_at_a_fifth_of_the_step(step_pair
 
 def test_each_method_against_its_own_prediction_at_four_fifths_of_the_step(tmp_path):
     own = own_step_predictions(0.8)
-    # the averages differ by ~1.2e-3 here too (PHYSICS §5)
+    # the averages differ by ~1.2e-3 here too (our own quadrature above)
     assert abs(own["arrival"] / own["centroid"] - 1) > 1e-3
     coarse = measure_delays(run(tmp_path, "coarse", scenario_text(0.8, 2048)))
     fine = measure_delays(run(tmp_path, "fine", scenario_text(0.8, 4096)))
@@ -322,9 +323,12 @@ def test_barrier_transmission_phase_time_with_filtered_reference(tmp_path):
     assert dv * 200 > 100 * 5e-4 * own["centroid"]
 
 
+# extrapolated from N = 2048 and 4096 (measured): centroid 6.4e-4, arrival 7.2e-4, spectral
+# 1.7e-3, probability 4.2e-3 off their own predictions; from 4096 and 8192 below 5e-4
 @pytest.mark.parametrize("points, tolerance", [
-    ((2048, 4096), 3e-3),
-    pytest.param((4096, 8192), 5e-4, marks=pytest.mark.slow)])
+    ((2048, 4096), {"centroid": 1e-3, "arrival": 1e-3, "spectral": 2.5e-3, "probability": 6e-3}),
+    pytest.param((4096, 8192), {"centroid": 5e-4, "arrival": 5e-4, "spectral": 5e-4,
+                                "probability": 1e-3}, marks=pytest.mark.slow)])
 def test_double_barrier_near_resonance_with_filtered_reference(tmp_path, points, tolerance):
     # two barriers V₀ = 1, width 1, 2 apart: a resonance near E_r ≈ 0.386 where T → 1 and
     # the phase time peaks (~2ħ/Γ, Breit & Wigner, Phys. Rev. 49, 519 (1936); resonant
@@ -339,7 +343,7 @@ def test_double_barrier_near_resonance_with_filtered_reference(tmp_path, points,
     own = own_transmission_predictions(k0, edges, heights)
     assert own["probability"] < 0.9
     # the three averages differ by 6e-3 and 3%: each method is held to its own
-    assert abs(own["centroid"] / own["arrival"] - 1) > 1.5 * tolerance
+    assert abs(own["centroid"] / own["arrival"] - 1) > 1.5 * tolerance["arrival"]
     potential = ("- barrier: {start: 0.0, end: 1.0, height: 1.0}\n"
                  "  - barrier: {start: 3.0, end: 4.0, height: 1.0}")
     # Δx = 0.5 and 0.25 (or 0.25, 0.125): every jump midway between grid points.
@@ -348,8 +352,178 @@ def test_double_barrier_near_resonance_with_filtered_reference(tmp_path, points,
                                      box=(-512.0, 512.0), points=points)
     assert fine.filtered
     probability = extrapolate(coarse.probability, fine.probability)
-    assert probability == pytest.approx(own["probability"], rel=2 * tolerance)
+    assert probability == pytest.approx(own["probability"], rel=tolerance["probability"])
     for method in ("centroid", "arrival", "spectral"):
         measured = extrapolate(coarse.measured[method].delay, fine.measured[method].delay)
-        assert measured == pytest.approx(own[method], rel=tolerance), method
+        assert measured == pytest.approx(own[method], rel=tolerance[method]), method
         assert fine.measured[method].predicted == pytest.approx(own[method], rel=1e-6), method
+
+
+LAB_STEP = """
+units: lab
+mass: 0.067
+grid: {span: [-600.146484375, 599.853515625], points: 4096}
+potential:
+  - step: {at: 0.0, height: 0.25}
+packet: {center: -250.0, width: 20.0, energy: 0.375}
+evolve: {duration: 600.0}
+absorber: {width: 80.0}
+record: {every: 20.0, sample_steps: 50}
+measure: {reference: 0.0, detectors: [-125.0, 150.0]}
+"""
+
+
+def test_transmission_above_a_step_is_not_delayed_in_lab_units(tmp_path):
+    # above a step t = 2k/(k+q) and r = (k−q)/(k+q) are real (Griffiths 2nd ed., Problem
+    # 2.34), so with the incident wave referred to x_r = 0 and the transmitted one to x_t = 0
+    # every delay vanishes. E₀ = 1.5 V₀, m = 0.067 m_e, σ = 20 nm; the step sits midway
+    # between grid points. The arrival reference must carry the amplitude |t| = √(T k/q):
+    # filtered by √T it was 0.613 fs off here (measured before this fix)
+    report = measure_delays(run(tmp_path, "lab", LAB_STEP))
+    tr = report.transmission
+    assert tr.filtered
+    assert set(tr.measured) == {"centroid", "arrival", "spectral"}
+    for method, result in tr.measured.items():
+        assert abs(result.predicted) < 1e-9, method
+        assert abs(result.delay) < 1e-3, method          # fs
+    # packet T against the published T(k) = 4kq/(k+q)² averaged with our own quadrature
+    hbar, m_e = 0.6582119569, 5.685630      # eV·fs; m_e in eV·fs²/nm² (CODATA 2018, from memory)
+    k0, kt = (math.sqrt(2 * 0.067 * m_e * e) / hbar for e in (0.375, 0.25))
+    sk = 1 / 40
+    T = lambda k: 4 * k * math.sqrt(k * k - kt * kt) / (k + math.sqrt(k * k - kt * kt)) ** 2
+    g = lambda k: math.exp(-0.5 * ((k - k0) / sk) ** 2)
+    assert k0 - 8 * sk < kt < k0 - 5.9 * sk       # the band's low edge below the top
+    expected = quad(lambda k: T(k) * g(k), kt, k0 + 8 * sk)[0] / \
+        quad(g, k0 - 8 * sk, k0 + 8 * sk)[0]
+    assert tr.probability == pytest.approx(expected, abs=2e-3)
+    # the packet lies 6σ_k above the top (a share 1e-9 below it): no "singular" warning
+    assert not any("barrier top" in w for w in report.warnings)
+
+
+@pytest.mark.slow
+def test_synthesized_smooth_step_gives_each_method_its_own_prediction(tmp_path):
+    # exact synthesis (PHYSICS §5) of a Fermi-shaped step crossed at E₀ = 1.5 V₀: every
+    # method must find its own prediction on exact data; the arrival method was 0.5–0.8%
+    # off here while its reference was filtered by √T (measured before this fix)
+    path = tmp_path / "smooth.yaml"
+    path.write_text("""
+units: atomic
+grid: {span: [-700.0, 500.0], points: 2048}
+potential:
+  - smooth_step: {at: 0.0, height: 1.0, width: 0.5}
+packet: {center: -200.0, width: 20.0, energy: 1.5}
+evolve: {duration: 420.0, dt: 0.05}
+record: {every: 20.0, sample_steps: 60}
+measure: {detectors: [-170.0, 150.0]}
+""")
+    from sojourn.config.scenario import load
+    from sojourn.workflows import synthesize
+    report = measure_delays(synthesize(build(load(path)), tmp_path / "smooth.h5"))
+    for channel in report.channels():
+        for method, result in channel.measured.items():
+            assert result.delay == pytest.approx(result.predicted, rel=2e-6), (channel, method)
+
+
+HOLE = """
+units: atomic
+grid: {span: [-760.107421875, 439.892578125], points: 4096}
+potential:
+  - barrier: {start: 0.0, end: 4.1015625, height: 1.0}
+packet: {center: -200.0, width: 20.0, energy: 1.293335}
+evolve: {duration: 450.0, dt: 0.02}
+absorber: {width: 60.0}
+record: {every: 10.0}
+measure: {reference: 0.0, detectors: [-100.0, 160.0]}
+"""
+
+
+def test_zero_of_the_reflection_above_a_barrier(tmp_path):
+    # above a rectangular barrier of width a, r(k) = 0 where qa = π (T = 1 there:
+    # Griffiths 2nd ed., Problem 2.33): E₀ = V₀ + (π/a)²/2 puts the zero at the packet's
+    # centre. Across it r changes sign; its phase cannot be measured where |r| is lost in
+    # the numerical error. For a symmetric barrier r t* is purely imaginary (unitarity
+    # and parity; from memory), so τ_R(E) = τ_T(E) and the two spectral delays must agree
+    # however large the grid error is (0.8% at 14 cells per barrier here)
+    a = 4.1015625
+    report = measure_delays(run(tmp_path, "hole", HOLE))
+    rf, tr = report.reflection, report.transmission
+    hole = [w for w in report.warnings if "spectrum has a zero near E =" in w]
+    assert len(hole) == 1 and "reflected" in hole[0] and "%" in hole[0]
+    at = float(hole[0].split("near E = ")[1].split()[0])
+    assert at == pytest.approx(1 + (math.pi / a) ** 2 / 2, abs=2e-3)
+    assert rf.measured["spectral"].predicted == pytest.approx(tr.measured["spectral"].predicted,
+                                                              rel=1e-6)
+    # with the hole averaged as measured the two differed by 2.5e-3 (measured before this fix)
+    assert rf.measured["spectral"].delay == pytest.approx(tr.measured["spectral"].delay, rel=3e-4)
+    # the arrival reference passes through the zero with r's change of sign: built from |r|
+    # (a kink) it was 10% off (measured before this fix); what is left is the grid error,
+    # the same as on the transmitted side
+    for channel in (rf, tr):
+        r = channel.measured["arrival"]
+        assert r.delay == pytest.approx(r.predicted, rel=1.2e-2)
+        assert abs(r.relative - tr.measured["arrival"].relative) < 5e-3
+
+
+HETERO = """
+units: lab
+mass: 0.067
+grid: {span: [-900.0, 300.0], points: 2458}
+potential:
+  - step: {at: 0.0, height: 0.25}
+packet: {center: -250.0, width: 20.0, energy: 0.08}
+evolve: {duration: DURATION, scheme: strang}
+absorber: {width: 80.0}
+record: {every: 10.0}
+measure: {reference: 0.0, detectors: [-125.0]}
+"""
+
+
+def test_arrival_error_tail_covers_a_run_cut_short(tmp_path):
+    # a run long enough that the reflected flux at the detector has died out (below 1e-9 of
+    # its peak) is the converged value; runs cut short miss part of the flux tail, and the
+    # arrival method's error_tail must cover that bias without exaggerating it (common
+    # practice, no source). Measured: bias −0.499 and −0.0137 fs at 700 and 800 fs.
+    def arrival(duration):
+        text = HETERO.replace("DURATION", f"{duration:.1f}")
+        return measure_delays(run(tmp_path, f"d{duration}", text)).reflection.measured["arrival"]
+    converged = arrival(1100)
+    # what is left is the bound on the incident tail still crossing the detector (3e-4 fs)
+    assert converged.error_tail < 1e-3
+    for duration in (700, 800):
+        cut = arrival(duration)
+        bias = abs(cut.delay - converged.delay)
+        assert bias > 1e-2
+        assert bias <= cut.error_tail <= 2 * bias + converged.error_tail, duration
+        # the error bar the reruns give (discretisation) is widened by the tail term
+        assert cut.error is None
+        cut.error = 1e-4
+        assert cut.error == pytest.approx(1e-4 + cut.error_tail)
+        assert cut.to_dict()["error_tail"] == pytest.approx(cut.error_tail)
+
+
+def test_weak_reflection_warns_of_the_incident_tail_at_its_detector(tmp_path):
+    # a Fermi-shaped step crossed at 1.5 V₀ reflects 0.16%; at a detector 107 from the step
+    # the incident packet's Gaussian tail still crossing it after the split (2e-6 of it) is
+    # not negligible against that: the arrival delay was 0.5% off with no warning (measured
+    # before this fix). The bias bound enters error_tail; a detector nearer the packet's
+    # start removes the overlap (common practice, no source)
+    text = """
+units: atomic
+grid: {span: [-700.0, 500.0], points: 2048}
+potential:
+  - smooth_step: {at: 0.0, height: 1.0, width: 0.5}
+packet: {center: -200.0, width: 20.0, energy: 1.5}
+evolve: {duration: 420.0, dt: 0.05}
+absorber: {width: 60.0}
+record: {every: 20.0}
+measure: {detectors: [DETECTOR]}
+"""
+    near = measure_delays(run(tmp_path, "near", text.replace("DETECTOR", "-106.9")))
+    assert any("passages overlap" in w for w in near.warnings)
+    r = near.reflection.measured["arrival"]
+    assert abs(r.deviation) > 1e-3 * abs(r.predicted)
+    assert abs(r.deviation) <= r.error_tail
+    far = measure_delays(run(tmp_path, "far", text.replace("DETECTOR", "-170.0")))
+    assert not any("passages overlap" in w for w in far.warnings)
+    r = far.reflection.measured["arrival"]
+    assert r.delay == pytest.approx(r.predicted, rel=1e-3)

@@ -10,7 +10,7 @@ from sojourn.model.grid import Grid
 from sojourn.engine.propagate import SCHEMES, Propagator
 from sojourn.engine.sampler import Sampler
 from sojourn.engine.observables import Detectors, probability, window
-from sojourn.store.runfile import RunFile
+from sojourn.store import RunFile
 from sojourn.config.scenario import loads
 
 

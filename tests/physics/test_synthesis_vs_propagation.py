@@ -1,4 +1,5 @@
-"""The propagator against exact synthesis from stationary states (PHYSICS §5):
+"""The propagator against exact synthesis from stationary states (PHYSICS §5,
+Exact synthesis):
 ψ(x,t) = ∫dk φ̃₀(k) ψ_k(x) e^{−iE(k)t/ħ} is the exact solution for a
 piecewise-constant potential; the split-operator run must approach it as Δx²
 (the jump limits a spectral method to second order in space)."""
@@ -59,7 +60,7 @@ def test_barrier_run_converges_to_synthesis_as_dx_squared():
 
 
 def test_error_does_not_depend_on_the_time_step():
-    # the jump's Δx² error dominates the wave function, not Δt (PHYSICS §5 notes)
+    # the jump's Δx² error dominates the wave function, not Δt (PHYSICS §3, Jumps)
     step = "step: {at: 0.0, height: 1.0}"
     assert l2_error(2048, 0.04, 1200.0, step) == pytest.approx(
         l2_error(2048, 0.08, 1200.0, step), rel=0.05)

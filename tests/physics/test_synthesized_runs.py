@@ -9,9 +9,9 @@ from scipy.integrate import quad
 
 from sojourn.build import build
 from sojourn.cli import main
-from sojourn.measure.core import measure_delays
+from sojourn.measure import measure_delays
 from sojourn.workflows import synthesize as write_synthesis
-from sojourn.store.runfile import RunFile
+from sojourn.store import RunFile
 from sojourn.config.scenario import load
 from sojourn.theory import closed_forms as cf
 

@@ -1,0 +1,110 @@
+"""Warnings about a run that belong to no delay method: an unfinished run, a
+packet that starts at the potential, probability through where theory
+transmits nothing, a packet near the barrier top, probability lost to the
+absorber or the box edge, spurious k-components, a time step past the grid
+limit. Shares are printed as percentages."""
+from __future__ import annotations
+
+import math
+from typing import Optional
+
+import numpy as np
+
+from .frame import K_SPAN, ForwardRun
+from .report import ChannelReport
+
+ABOVE_TOP_WARN = 1e-3   # share of the packet above the barrier top that calls for a warning
+OUT_OF_BAND_WARN = 1e-6  # probability outside the packet's k-band that calls for a warning
+LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
+START_OVERLAP = 1e-6    # probability beyond the reference point at t = 0
+CHANNEL_MIN = 1e-6      # outgoing probability below which a channel is not measured
+
+
+def starts_at_potential(run: ForwardRun) -> float:
+    """Probability beyond the reference point at t = 0 (the packet overlaps the potential)."""
+    return float(run.observables["P_right"][0])
+
+
+def before_measuring(run: ForwardRun, status: str) -> list:
+    """Warnings known before any method runs."""
+    warnings = []
+    if status != "complete":
+        warnings.append(f"the run is not complete (status '{status}'): the outgoing packet "
+                        "may not have left")
+    overlap = starts_at_potential(run)
+    if overlap > START_OVERLAP:
+        warnings.append(f"{overlap:.2%} of the packet lies at or beyond the reference point "
+                        f"{run.x_r * run.sign:g} at t = 0: it overlaps the potential instead of "
+                        "arriving at it, so its delays are not scattering delays; start it "
+                        "farther away")
+    return warnings
+
+
+def leakage(run: ForwardRun, stats: dict, prediction) -> Optional[str]:
+    """Probability that went through where theory transmits nothing, once the
+    packet has left the potential (not while it still sits there, nor when it
+    started there)."""
+    if prediction is None or starts_at_potential(run) > START_OVERLAP:
+        return None
+    if prediction.transmission is not None and prediction.transmission.probability >= 1e-8:
+        return None
+    beyond = float(stats["P_tr"][-1] + run.observables["absorbed_right"][-1])
+    still = float(stats["norm"][-1] - stats["P_out"][-1] - stats["P_tr"][-1])
+    if beyond <= CHANNEL_MIN or still > beyond:
+        return None
+    return (f"{beyond:.2g} of the probability went through, where theory transmits nothing: "
+            "spurious leakage, most likely from too large a time step at a sharp feature")
+
+
+def share_above_top(run: ForwardRun) -> tuple[float, float]:
+    """(share of |ψ̃₀|² above the barrier top, the top); 1 without a top above
+    the incidence level."""
+    info, hbar, m = run.info, run.hbar, run.mass
+    top = float(np.max(run.V))
+    if top <= info.level:
+        return 1.0, top
+    k_top = math.sqrt(2 * m * (top - info.level)) / hbar
+    return 0.5 * math.erfc((k_top - info.k0) / (math.sqrt(2) * info.sigma_k)), top
+
+
+def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelReport],
+                    transmission: Optional[ChannelReport]) -> list:
+    """Warnings about the run as a whole, after the channels were measured."""
+    warnings = []
+    info, hbar, m = run.info, run.hbar, run.mass
+    share, top = share_above_top(run)
+    if ABOVE_TOP_WARN < share < 1 - ABOVE_TOP_WARN:     # the band straddles the top
+        warnings.append(f"{share:.2%} of the packet lies above the barrier top (V = {top:g}), "
+                        "the rest below: delays near the top are singular; the reference is "
+                        "the filtered spectrum")
+    obs = run.observables
+    absorbed = obs["absorbed_left"] + obs["absorbed_right"]
+    lost = float(np.max(absorbed)) if len(absorbed) else 0.0
+    if lost > LOST_WARN and transmission is None and reflection is not None \
+            and reflection.snapshots_used == 0:
+        warnings.append(f"{lost:.2%} of the probability was absorbed before it could be measured")
+    if run.W is None:
+        edge = float(np.max(stats["edge"]))
+        if edge > LOST_WARN:
+            warnings.append(f"up to {edge:.2g} of the probability reached the box edge: it wraps "
+                            "around the periodic box; enlarge the box or add an absorber")
+    # probability outside the packet's k-band (spurious high-k components)
+    psi = run.psi(len(run.times) - 1)
+    spectrum = np.abs(np.fft.fft(psi)) ** 2
+    kgrid = np.abs(2 * math.pi * np.fft.fftfreq(len(psi), d=run.dx))
+    band = np.abs(kgrid - info.k0) <= K_SPAN * info.sigma_k
+    shift = 2 * m * (run.level_out - info.level) / hbar ** 2
+    edges = [max(info.k0 - K_SPAN * info.sigma_k, 0.0), info.k0 + K_SPAN * info.sigma_k]
+    q_lo, q_hi = (math.sqrt(max(e * e - shift, 0.0)) for e in edges)
+    band |= (kgrid >= q_lo) & (kgrid <= q_hi)       # the transmitted wavenumbers
+    total = float(spectrum.sum())
+    outside = float(spectrum[~band].sum() / total) if total > 0 else 0.0
+    if outside > OUT_OF_BAND_WARN:
+        warnings.append(f"{outside:.2g} of the final state lies outside the packet's k-band "
+                        f"(k₀ ± {K_SPAN:g}σ_k): spurious components, from a time step too large "
+                        "for the grid or a packet cut by the box edge")
+    phase = run.grid_phase
+    if phase > math.pi:
+        warnings.append(f"the time step is past the grid limit: Δt·(E_max + ΔV)/ħ = {phase:.3g} "
+                        "> π; sharp features feed spurious high-k components that bias delays")
+    return warnings
