@@ -20,7 +20,7 @@ import time
 from importlib import resources
 from pathlib import Path
 
-from sojourn.render import core as render
+from sojourn import render
 from sojourn.build import build
 from sojourn.workflows import run as execute
 from sojourn.store.runfile import RunFile

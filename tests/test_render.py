@@ -13,7 +13,7 @@ import pytest
 from scipy import integrate
 
 from sojourn import cli
-from sojourn.render import core as render
+from sojourn import render
 from sojourn.model.packets import describe, free_evolution
 from sojourn.store.runfile import RunFile
 

@@ -436,7 +436,7 @@ def _frame_bar(quiet: bool):
 
 
 def cmd_render(args) -> int:
-    from .render import core as render
+    from . import render
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
     common = {}
@@ -487,7 +487,7 @@ def add_render(sub) -> None:
 
 
 def demo_render(run_path, out_folder, args) -> None:
-    from .render import core as render
+    from . import render
     update, close = _frame_bar(getattr(args, "quiet", False))
     try:   # 720p keeps the demo quick; talks get 1080p by default
         movie = render.render_movie(run_path, Path(out_folder) / "demo.mp4",

@@ -1,0 +1,96 @@
+"""sojourn's looks: one palette, fixed colours for each role, two styles.
+
+Roles and their colours (the same in every style, so a reader learns them once):
+
+==============  =======================  ================================
+role            paper (light)            talk (dark)
+==============  =======================  ================================
+reflected       deep teal   #0b6e69      #3cc7b8
+transmitted     ochre       #b36b00      #f2a93b
+density (all)   ink blue    #23395b      #9fb7d9
+reference       slate       #6b7280      #aab2c0  (dashed)
+theory          plum        #7a2e6e      #d38bc4  (solid, thin)
+measurement     vermilion   #c8401e      #ff6f4f  (markers, ruler)
+potential       sand        #8c7a5b      #bfae8c
+==============  =======================  ================================
+
+Type: a humanist sans (DejaVu Sans ships with matplotlib, so every machine
+draws the same glyphs), sizes scaled with the canvas height. Untrusted
+channels are drawn hollow and greyed (`untrusted`).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ..errors import RenderError
+
+
+@dataclass(frozen=True)
+class Look:
+    """Colours, type and line sizes of one style (sizes at 1080 pixels high for
+    movies, in points for figures)."""
+
+    background: str
+    text: str
+    grid: str
+    density: str
+    reflected: str
+    transmitted: str
+    real: str
+    imag: str
+    reference: str
+    theory: str
+    measurement: str
+    potential: str
+    energy: str
+    untrusted: str
+    font: float
+    line: float
+    cmap: str
+    trajectory: str
+    family: str = "DejaVu Sans"
+
+
+PAPER = Look(background="#fbfaf7", text="#1d1d1f", grid="#e4e1da", density="#23395b",
+             reflected="#0b6e69", transmitted="#b36b00", real="#0b6e69", imag="#b36b00",
+             reference="#6b7280", theory="#7a2e6e", measurement="#c8401e", potential="#8c7a5b",
+             energy="#7a2e6e", untrusted="#a8a8a8", font=14, line=1.6, cmap="cividis",
+             trajectory="#c8401e")
+TALK = Look(background="#15181f", text="#ecebe6", grid="#2f3441", density="#9fb7d9",
+            reflected="#3cc7b8", transmitted="#f2a93b", real="#3cc7b8", imag="#f2a93b",
+            reference="#aab2c0", theory="#d38bc4", measurement="#ff6f4f", potential="#bfae8c",
+            energy="#d38bc4", untrusted="#6c707a", font=26, line=4.0, cmap="bone",
+            trajectory="#ff6f4f")
+TALK_LIGHT = Look(**{**PAPER.__dict__, "font": 26, "line": 4.0})
+
+LOOKS = {"talk-dark": TALK, "talk-light": TALK_LIGHT, "paper": PAPER, "talk": TALK}
+STYLES = ("talk-dark", "talk-light", "paper", "talk")
+
+
+def look(style: str) -> Look:
+    """The Look of a style name (RenderError naming the choices otherwise)."""
+    if style not in LOOKS:
+        raise RenderError(f"--style {style!r}: choose from {', '.join(STYLES)}")
+    return LOOKS[style]
+
+
+def apply_look(fig, axes, look: Look, font: float) -> None:
+    """Background, spines, ticks and labels of `axes` in the look's colours and type."""
+    fig.set_facecolor(look.background)
+    for ax in axes:
+        ax.set_facecolor("none" if ax is not axes[0] else look.background)
+        ax.tick_params(colors=look.text, labelsize=0.8 * font, width=max(font / 20, 0.6),
+                       length=font / 3)
+        for label in ax.get_xticklabels() + ax.get_yticklabels():
+            label.set_family(look.family)
+        for spine in ax.spines.values():
+            spine.set_color(look.text)
+            spine.set_linewidth(max(font / 20, 0.6))
+        for side in ("top", "right"):
+            if ax is axes[0] and len(axes) == 1:
+                ax.spines[side].set_visible(False)
+        for label in (ax.xaxis.label, ax.yaxis.label, ax.title):
+            label.set_color(look.text)
+            label.set_family(look.family)
+        ax.xaxis.label.set_fontsize(font)
+        ax.yaxis.label.set_fontsize(font)
