@@ -18,13 +18,14 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.colors import LogNorm, Normalize
 from matplotlib.figure import Figure
 
-from ..errors import RenderError, SojournError
+from ..errors import RenderError
 from ..store.runfile import RunFile
-from ..theory import solver as theory
 from .facts import RunFacts, channels, open_run, run_facts, window
 from .options import FIGURE_FORMATS, PRINT_DPI, check_output, figure_size, unit_label
-from .overlays import (direction, energy_spectrum, energy_width, incident_bounds,
-                       reference_trajectory, side_centroid, turning_time)
+from .delays import delay_panels
+from .overlays import (action_window, direction, incident_bounds, reference_trajectory,
+                       side_centroid, turning_time)
+from .scan import Ruler, Scan, reflection_ruler, scan_run
 from .styles import Look, apply_look, look as get_look
 
 MAP_COLUMNS = 1200         # space–time map resolution caps (bins, not pixels of output)
@@ -104,136 +105,139 @@ def outgoing_trajectory(st: SpaceTime, facts: RunFacts) -> np.ndarray:
     return np.where(enough, centroid, np.nan)
 
 
-def channels(analysis: dict) -> list[tuple[str, dict]]:
-    out = []
-    for name in ("reflection", "transmission"):
-        part = analysis.get(name) if isinstance(analysis, dict) else None
-        if isinstance(part, dict) and isinstance(part.get("measured"), dict) and part["measured"]:
-            out.append((name, part))
-    return out
+def _zoom_panel(ax, st: SpaceTime, scan: Scan, facts: RunFacts, ruler: Ruler, look: Look,
+                font: float, lw: float, unit: str) -> None:
+    """The trajectories magnified where the reflected packet has left: the
+    mirror's and the measured centroid, five delays tall, with the ruler — the
+    time the real packet reaches a place after the mirror's packet did."""
+    info = facts.packet
+    used = np.nonzero(scan.usable)[0]
+    t_c = float(st.times[used[len(used) // 2]] if len(used) else st.times[-1])
+    x0 = float(reference_trajectory(t_c, info, facts.reference))
+    tau = ruler.delay
+    half = max(2.5 * abs(tau), 1e-3 * float(np.ptp(st.times)) or 1.0)
+    t_lo, t_hi = t_c + tau / 2 - half, t_c + tau / 2 + half
+    speed = abs(info.group_velocity)
+    t_fine = np.linspace(t_lo - half, t_hi + half, 200)
+    ax.plot(reference_trajectory(t_fine, info, facts.reference), t_fine, color=look.reference,
+            linewidth=lw, linestyle=(0, (4, 2)))
+    ax.plot(outgoing_trajectory(st, facts), st.times, color=look.measurement, linewidth=lw,
+            marker="o", markersize=lw + 2)
+    ax.plot([x0, x0], [t_c, t_c + tau], color=look.measurement, linewidth=1.6 * lw,
+            marker="_", markersize=4 * lw + 6, markeredgewidth=lw, gid="delay-ruler")
+    ax.text(0.96, 0.04, ruler.label(unit), transform=ax.transAxes, ha="right", va="bottom",
+            color=look.measurement, fontsize=0.7 * font)
+    ax.set_xlim(x0 - speed * half * 1.2, x0 + speed * half * 1.2)
+    ax.set_ylim(t_lo, t_hi)
+    ax.set_xlabel(f"x ({unit_label(facts.units['length'])})")
+    ax.set_title("zoom on the delay", fontsize=0.75 * font, loc="left")
 
 
-def theory_delays(facts: RunFacts, energies: np.ndarray) -> dict:
-    """τ_R(E), τ_T(E) of stationary scattering for the run's potential, r
-    referenced at the run's mirror point; {} when the theory cannot say."""
-    if facts.potential is None:
-        return {}
-    try:
-        result = theory.scatter(facts.potential, energies, hbar=facts.hbar, x_r=facts.reference,
-                                direction="right" if direction(facts.packet) > 0 else "left")
-    except (SojournError, ValueError, ArithmeticError):
-        return {}
-    out = {}
-    for channel in ("reflection", "transmission"):
-        values = np.asarray(getattr(result, f"delay_{channel}"), dtype=float)
-        if values.shape == energies.shape and np.any(np.isfinite(values)):
-            out[channel] = values
-    return out
-
-
-def _delay_panel(ax, facts: RunFacts, look: Look, font: float, lw: float) -> None:
-    """τ(E) from theory, the measured delays with error bars at E₀, the spectrum."""
-    info, u = facts.packet, facts.units
-    sigma_e = facts.hbar ** 2 * abs(info.k0) * info.sigma_k / facts.mass
-    e_lo = max(info.energy - 3 * sigma_e, info.level + 1e-3 * sigma_e)
-    energies = np.linspace(e_lo, info.energy + 3 * sigma_e, 400)
-    spectrum = energy_spectrum(energies, info, facts.hbar, facts.mass)
-    shade = ax.twinx()
-    shade.fill_between(energies, 0, spectrum, color=look.density, alpha=0.15, linewidth=0)
-    shade.set_ylim(0, 1.15 * spectrum.max())
-    shade.set_yticks([])
-    shade.set_zorder(ax.get_zorder() - 1)
-    ax.patch.set_visible(False)
-    curves = theory_delays(facts, energies)
-    markers = {"reflection": "o", "transmission": "s"}
-    measured = channels(facts.analysis or {})
-    for c, (name, part) in enumerate(measured):
-        colour = look.density if name == "reflection" else look.real
-        if name in curves:
-            ax.plot(energies, curves[name], color=colour, linewidth=lw, gid=f"theory-{name}",
-                    label=f"theory τ_{name[0].upper()}(E)")
-        wigner = (part.get("theory") or {}).get("wigner")
-        if isinstance(wigner, (int, float)) and math.isfinite(wigner):
-            ax.plot([info.energy], [wigner], marker="*", color=look.energy, markersize=2.5 * lw + 6,
-                    linestyle="none", label="phase delay at E₀" if c == 0 else None)
-        methods = list(part["measured"].items())
-        offsets = (np.arange(len(methods)) - (len(methods) - 1) / 2) * 0.08 * sigma_e
-        for i, (method, m) in enumerate(methods):
-            if not isinstance(m, dict) or not isinstance(m.get("delay"), (int, float)):
-                continue
-            err = m.get("error")
-            err = abs(err) if isinstance(err, (int, float)) and math.isfinite(err) else None
-            ax.errorbar([info.energy + offsets[i]], [m["delay"]], yerr=err,
-                        marker=markers[name], markersize=1.8 * lw + 3, capsize=2 * lw,
-                        linewidth=lw * 0.8, linestyle="none", color=f"C{i}",
-                        label=f"{name} {method}")
-            if isinstance(m.get("predicted"), (int, float)):
-                ax.plot([info.energy + offsets[i]], [m["predicted"]], marker="_", color=f"C{i}",
-                        markersize=4 * lw + 6, markeredgewidth=lw)
-    ax.set_xlim(energies[0], energies[-1])
-    ax.set_xlabel(f"E ({u['energy']})")
-    ax.set_ylabel(f"delay ({u['time']})")
-    ax.axvline(info.energy, color=look.grid, linewidth=0.6 * lw, zorder=0)
-    ax.legend(fontsize=0.7 * font, frameon=False, labelcolor=look.text, loc="best")
-    ax.set_title("delays: theory, measured (–: prediction)", fontsize=0.9 * font)
+def _far_gain(st: SpaceTime, scan: Scan, facts: RunFacts) -> tuple[float, np.ndarray]:
+    """A power of ten for the far side of the map when its part is small, and
+    the far columns."""
+    cols = np.linspace(*st.x_edges, st.image.shape[1] + 1)
+    centres = 0.5 * (cols[1:] + cols[:-1])
+    far = direction(facts.packet) * (centres - facts.reference) > 0 if facts.scattering else \
+        np.zeros(len(centres), bool)
+    near_peak = float(st.image[:, ~far].max(initial=0.0))
+    far_peak = float(st.image[:, far].max(initial=0.0))
+    if not (scan.has_transmission and 0 < far_peak < 0.1 * near_peak):
+        return 1.0, far
+    return 10.0 ** math.floor(math.log10(0.5 * near_peak / far_peak)), far
 
 
 def figure(path, options: FigureOptions = FigureOptions()):
     """The space–time figure of a run file (a matplotlib Figure on an Agg
-    canvas), with a delay panel when the file holds a saved delay analysis."""
+    canvas): the map with the trajectories, a zoom with the delay ruler, and a
+    delay panel with residuals when the file holds a saved delay analysis."""
     if not (0 < options.dpi <= 2400):
         raise RenderError(f"--dpi {options.dpi:g}: choose 1 to 2400")
     look = get_look(options.style)
     with open_run(path) as run:
         facts = run_facts(run)
-        span = window(facts, options.xlim)
+        scan = scan_run(run, facts)
+        span = window(facts, options.xlim, action_window(
+            facts.x, np.maximum(scan.peak, scan.reference_peak),
+            facts.V if facts.scattering else None, facts.inner, facts.packet.width))
         st = space_time(run, facts, span)
-    panels = 2 if channels(facts.analysis or {}) else 1
+    ruler = reflection_ruler(scan, facts) if facts.scattering else None
+    analysed = bool(channels(facts.analysis))
+    ratios = [1.5] + ([0.75] if ruler else []) + ([1.25] if analysed else [])
     size = figure_size(options.size, options.dpi) if options.size else \
-        ((6.5, 4.5) if panels == 1 else (11.0, 4.5))
+        (2.9 * sum(ratios) + 0.6, 4.6)
     font = look.font * (0.7 if options.style == "paper" else 0.55)
     lw = look.line * (0.7 if options.style == "paper" else 0.5)
+    u = {k: unit_label(v) for k, v in facts.units.items() if isinstance(v, str)}
 
     fig = Figure(figsize=size, dpi=options.dpi, layout="constrained")
     FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(1, panels, width_ratios=[1.4, 1][:panels])
+    grid = fig.add_gridspec(1, len(ratios), width_ratios=ratios)
     ax = fig.add_subplot(grid[0, 0])
-    u = facts.units
-    top = float(st.image.max()) or 1.0
+    gain, far = _far_gain(st, scan, facts)
+    image = st.image.copy()
+    image[:, far] *= gain
+    top = float(image.max()) or 1.0
     norm = LogNorm(vmin=top * 1e-6, vmax=top, clip=True) if options.log else \
         Normalize(vmin=0, vmax=top)
-    image = np.maximum(st.image, top * 1e-6) if options.log else st.image
+    image = np.maximum(image, top * 1e-6) if options.log else image
     mesh = ax.imshow(image, origin="lower", aspect="auto", cmap=look.cmap, norm=norm,
                      extent=(*st.x_edges, *st.t_edges), interpolation="nearest")
     bar = fig.colorbar(mesh, ax=ax, pad=0.01)
-    bar.set_label(f"|ψ|² (1/{u['length']})", color=look.text, fontsize=font)
-    bar.ax.tick_params(colors=look.text, labelsize=0.8 * font)
+    bar.set_label(f"|ψ|² (1/{u['length']})", color=look.text, fontsize=0.85 * font)
+    bar.ax.tick_params(colors=look.text, labelsize=0.7 * font)
     if facts.scattering:
         t_fine = np.linspace(st.times[0], st.times[-1], 800)
         ax.plot(reference_trajectory(t_fine, facts.packet, facts.reference), t_fine,
-                color="white", linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror",
+                color=look.reference, linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror",
                 gid="mirror-trajectory")
-        ax.plot(outgoing_trajectory(st, facts), st.times, color=look.trajectory, linewidth=lw,
-                label="measured outgoing centroid", gid="outgoing-centroid")
-        ax.axvline(facts.reference, color="white", linewidth=0.5 * lw, alpha=0.6, linestyle=":")
+        ax.plot(outgoing_trajectory(st, facts), st.times, color=look.measurement, linewidth=lw,
+                label="measured reflected centroid", gid="outgoing-centroid")
+        if scan.has_transmission:
+            ax.plot(transmitted_trajectory(scan, facts), scan.times, color=look.transmitted,
+                    linewidth=lw, label="measured transmitted centroid",
+                    gid="transmitted-centroid")
+        ax.axvline(facts.reference, color=look.reference, linewidth=0.5 * lw, linestyle=":")
+        if gain > 1:
+            ax.text(0.98, 0.02, f"far side ×{gain:.0e}".replace("e+0", "e"),
+                    transform=ax.transAxes, ha="right", va="bottom", color=look.transmitted,
+                    fontsize=0.7 * font)
     else:       # trapped or at rest: the packet's centroid is the trajectory to show
-        ax.plot(st.side_centroid, st.times, color=look.trajectory, linewidth=lw,
+        ax.plot(st.side_centroid, st.times, color=look.measurement, linewidth=lw,
                 label="centroid ⟨x⟩", gid="centroid")
     ax.set_xlim(*st.x_edges)
     ax.set_ylim(*st.t_edges)
     ax.set_xlabel(f"x ({u['length']})")
     ax.set_ylabel(f"t ({u['time']})")
-    ax.set_title(facts.title, fontsize=font)
-    legend = ax.legend(fontsize=0.7 * font, loc="upper right", frameon=True, framealpha=0.6,
-                       facecolor="black", edgecolor="none", labelcolor="white")
+    ax.set_title(facts.title, fontsize=0.85 * font, loc="left")
+    legend = ax.legend(fontsize=0.65 * font, loc="upper right", frameon=True, framealpha=0.8,
+                       facecolor=look.background, edgecolor="none", labelcolor=look.text)
     legend.get_frame().set_linewidth(0)
     axes = [ax]
-    if panels == 2:
-        ax2 = fig.add_subplot(grid[0, 1])
-        _delay_panel(ax2, facts, look, font, lw)
-        axes.append(ax2)
+    column = 1
+    if ruler:
+        zoom = fig.add_subplot(grid[0, column])
+        _zoom_panel(zoom, st, scan, facts, ruler, look, font, lw, u["time"])
+        axes.append(zoom)
+        column += 1
+    if analysed:
+        cell = grid[0, column].subgridspec(2, 1, height_ratios=[2.2, 1])
+        upper = fig.add_subplot(cell[0])
+        lower = fig.add_subplot(cell[1], sharex=upper)
+        delay_panels(upper, lower, facts, look, font, lw)
+        axes += [upper, lower]
     apply_look(fig, axes, look, font)
     return fig
+
+
+def transmitted_trajectory(scan: Scan, facts: RunFacts) -> np.ndarray:
+    """The far side's centroid where that side holds at least half its largest
+    probability after the turning time (NaN elsewhere)."""
+    after = scan.times >= turning_time(facts.packet, facts.reference)
+    if not after.any():
+        return np.full(len(scan.times), np.nan)
+    enough = after & (scan.transmitted >= 0.5 * float(scan.transmitted[after].max()))
+    return np.where(enough, scan.transmitted_centroid, np.nan)
 
 
 def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Path:
@@ -246,5 +250,3 @@ def render_figure(path, output, options: FigureOptions = FigureOptions()) -> Pat
     except OSError as exc:
         raise RenderError(f"{output}: cannot write the figure ({exc})") from None
     return output
-
-

@@ -12,7 +12,9 @@ import math
 
 import numpy as np
 
+from ..errors import SojournError
 from ..model.packets import PacketInfo, free_evolution
+from ..theory import solver as theory
 
 
 def direction(info: PacketInfo) -> int:
@@ -110,3 +112,22 @@ def action_window(x: np.ndarray, peak_density: np.ndarray, V, inner: tuple[float
             lo, hi = min(lo, float(x[feature[0]])), max(hi, float(x[feature[-1]]))
     margin = 2 * packet_width
     return max(inner[0], lo - margin), min(inner[1], hi + margin)
+
+
+def phase_delay(facts, energies: np.ndarray) -> dict:
+    """τ_R(E), τ_T(E) = ħ d(arg r, t)/dE of stationary scattering for the run's
+    potential (`facts.potential`), r referenced at the run's mirror point;
+    {} when the theory cannot say (the potential outside its reach)."""
+    if facts.potential is None:
+        return {}
+    try:
+        result = theory.scatter(facts.potential, energies, hbar=facts.hbar, x_r=facts.reference,
+                                direction="right" if direction(facts.packet) > 0 else "left")
+    except (SojournError, ValueError, ArithmeticError):
+        return {}
+    out = {}
+    for channel in ("reflection", "transmission"):
+        values = np.asarray(getattr(result, f"delay_{channel}"), dtype=float)
+        if values.shape == energies.shape and np.any(np.isfinite(values)):
+            out[channel] = values
+    return out
