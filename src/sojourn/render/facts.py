@@ -35,6 +35,7 @@ class RunFacts:
     dt: float = 0.0
     scheme: str = "strang"
     single: bool = False
+    far_edge: float = 0.0          # where the potential ends on the transmission side
 
 
 def run_facts(run: RunFile) -> RunFacts:
@@ -52,6 +53,8 @@ def run_facts(run: RunFile) -> RunFacts:
     except SojournError:
         scenario, potential, confining = None, None, False
         title = str(attrs.get("title", ""))
+    support = potential.support() if potential is not None else None
+    edge = run.reference if support is None else (support[1] if info.k0 >= 0 else support[0])
     return RunFacts(title=str(title or attrs.get("title", "")), units=run.units,
                     hbar=float(attrs["hbar"]), mass=float(attrs["mass"]),
                     packet=info, reference=run.reference, x=x, V=run.V,
@@ -59,7 +62,8 @@ def run_facts(run: RunFile) -> RunFacts:
                     analysis=run.analysis(), scenario=scenario, potential=potential,
                     scattering=not confining and info.k0 != 0, absorber=W,
                     dt=float(attrs.get("dt", 0.0)), scheme=str(attrs.get("scheme", "strang")),
-                    single=str(attrs.get("precision", "double")) == "single")
+                    single=str(attrs.get("precision", "double")) == "single",
+                    far_edge=float(edge))
 
 
 def open_run(path) -> RunFile:

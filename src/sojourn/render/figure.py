@@ -25,8 +25,8 @@ from .options import FIGURE_FORMATS, PRINT_DPI, check_output, figure_size, unit_
 from .delays import delay_panels
 from .overlays import (action_window, direction, incident_bounds, reference_trajectory,
                        side_centroid, turning_time)
-from .scan import Ruler, Scan, reflection_ruler, scan_run
-from .styles import Look, apply_look, look as get_look
+from .scan import Ruler, Scan, channel_gain, reflection_ruler, scan_run
+from .styles import Look, apply_look, fit_inside, look as get_look
 
 MAP_COLUMNS = 1200         # space–time map resolution caps (bins, not pixels of output)
 MAP_ROWS = 1500
@@ -134,17 +134,13 @@ def _zoom_panel(ax, st: SpaceTime, scan: Scan, facts: RunFacts, ruler: Ruler, lo
 
 
 def _far_gain(st: SpaceTime, scan: Scan, facts: RunFacts) -> tuple[float, np.ndarray]:
-    """A power of ten for the far side of the map when its part is small, and
-    the far columns."""
+    """The transmitted part's scale factor (`channel_gain`) and the map's
+    columns beyond the potential where it applies."""
     cols = np.linspace(*st.x_edges, st.image.shape[1] + 1)
     centres = 0.5 * (cols[1:] + cols[:-1])
-    far = direction(facts.packet) * (centres - facts.reference) > 0 if facts.scattering else \
-        np.zeros(len(centres), bool)
-    near_peak = float(st.image[:, ~far].max(initial=0.0))
-    far_peak = float(st.image[:, far].max(initial=0.0))
-    if not (scan.has_transmission and 0 < far_peak < 0.1 * near_peak):
-        return 1.0, far
-    return 10.0 ** math.floor(math.log10(0.5 * near_peak / far_peak)), far
+    if not facts.scattering:
+        return 1.0, np.zeros(len(centres), bool)
+    return channel_gain(scan), direction(facts.packet) * (centres - facts.far_edge) > 0
 
 
 def figure(path, options: FigureOptions = FigureOptions()):
@@ -166,14 +162,23 @@ def figure(path, options: FigureOptions = FigureOptions()):
     ratios = [1.5] + ([0.75] if ruler else []) + ([1.25] if analysed else [])
     size = figure_size(options.size, options.dpi) if options.size else \
         (2.9 * sum(ratios) + 0.6, 4.6)
-    font = look.font * (0.7 if options.style == "paper" else 0.55)
-    lw = look.line * (0.7 if options.style == "paper" else 0.5)
+    # type and lines scale with the page (a 7-inch-wide page of panels is the norm)
+    scale = min(max(min(size[0] / (2.9 * sum(ratios) + 0.6), size[1] / 4.6), 0.55), 1.6)
+    font = look.font * (0.7 if options.style == "paper" else 0.55) * scale
+    lw = look.line * (0.7 if options.style == "paper" else 0.5) * scale
     u = {k: unit_label(v) for k, v in facts.units.items() if isinstance(v, str)}
 
     fig = Figure(figsize=size, dpi=options.dpi, layout="constrained")
     FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(1, len(ratios), width_ratios=ratios)
-    ax = fig.add_subplot(grid[0, 0])
+    stacked = len(ratios) > 1 and size[0] < 2.4 * len(ratios)   # narrow: panels in rows
+    if stacked:
+        grid = fig.add_gridspec(2, len(ratios) - 1, height_ratios=[1.3, 1])
+        ax = fig.add_subplot(grid[0, :])
+        cells = [grid[1, i] for i in range(len(ratios) - 1)]
+    else:
+        grid = fig.add_gridspec(1, len(ratios), width_ratios=ratios)
+        ax = fig.add_subplot(grid[0, 0])
+        cells = [grid[0, i] for i in range(1, len(ratios))]
     gain, far = _far_gain(st, scan, facts)
     image = st.image.copy()
     image[:, far] *= gain
@@ -214,19 +219,20 @@ def figure(path, options: FigureOptions = FigureOptions()):
                        facecolor=look.background, edgecolor="none", labelcolor=look.text)
     legend.get_frame().set_linewidth(0)
     axes = [ax]
-    column = 1
+    column = 0
     if ruler:
-        zoom = fig.add_subplot(grid[0, column])
+        zoom = fig.add_subplot(cells[column])
         _zoom_panel(zoom, st, scan, facts, ruler, look, font, lw, u["time"])
         axes.append(zoom)
         column += 1
     if analysed:
-        cell = grid[0, column].subgridspec(2, 1, height_ratios=[2.2, 1])
+        cell = cells[column].subgridspec(2, 1, height_ratios=[2.2, 1])
         upper = fig.add_subplot(cell[0])
         lower = fig.add_subplot(cell[1], sharex=upper)
         delay_panels(upper, lower, facts, look, font, lw)
         axes += [upper, lower]
     apply_look(fig, axes, look, font)
+    fit_inside(fig)
     return fig
 
 

@@ -30,8 +30,8 @@ from .frames import frame_times, propagated_states
 from .options import DEFAULT_CURVES, MOVIE_FORMATS, check_output, parse_curves, unit_label
 from .overlays import (action_window, direction, incident_bounds, mirror_reference,
                        reference_trajectory, side_centroid, turning_time)
-from .scan import Scan, reflection_ruler, scan_run
-from .styles import apply_look, look as get_look
+from .scan import Scan, channel_gain, reflection_ruler, scan_run
+from .styles import apply_look, fit_inside, look as get_look
 
 
 @dataclass(frozen=True)
@@ -90,7 +90,8 @@ class MovieFrame:
             options = replace(options, curves=tuple(c for c in options.curves if c != "reference"))
         look = self.look = get_look(options.style)
         width, height = options.size
-        font, lw = look.font * height / 1080, look.line * height / 1080
+        scale = min(height / 1080, width / 1440)
+        font, lw = look.font * scale, look.line * scale
         curves = self.curves = set(options.curves)
         x = facts.x
         lo, hi = window(facts, options.xlim, action_window(
@@ -103,23 +104,24 @@ class MovieFrame:
         u = {k: unit_label(v) for k, v in facts.units.items() if isinstance(v, str)}
         self.time_unit = u["time"]
         self.ruler = reflection_ruler(scan, facts) if facts.scattering and options.ruler else None
-        fig = self.fig = Figure(figsize=(width / 100, height / 100), dpi=100)
+        fig = self.fig = Figure(figsize=(width / 100, height / 100), dpi=100,
+                                layout="constrained")
+        fig.get_layout_engine().set(w_pad=0.02 * height / 100, h_pad=0.02 * height / 100)
         self.canvas = FigureCanvasAgg(fig)
-        main_width = 0.58 if self.ruler else (0.80 if "potential" in curves else 0.86)
-        ax = self.ax = fig.add_axes((0.075, 0.12, main_width, 0.70))
+        grid = fig.add_gridspec(1, 2 if self.ruler else 1, width_ratios=[2.6, 1][:1 + bool(
+            self.ruler)])
+        ax = self.ax = fig.add_subplot(grid[0, 0])
         axes = [ax]
         wave = {"real", "imag"} & curves
         inside = (x >= lo) & (x <= hi)
         top = 1.08 * max(float(np.max(np.maximum(scan.peak, scan.reference_peak)[inside])),
                          1e-300)
         self.top = top
-        # the far side's part scaled up (a power of ten, labelled) when it is small
-        far = direction(facts.packet) * (self.xs - facts.reference) > 0
+        # beyond the potential, the transmitted part in its own colour, scaled up by a
+        # labelled power of ten when it carries little of the probability
+        far = direction(facts.packet) * (self.xs - facts.far_edge) > 0
         self.far = far if facts.scattering else np.zeros_like(far)
-        far_peak = float(np.max(scan.peak[self.index][self.far], initial=0.0))
-        self.gain = 1.0
-        if facts.scattering and scan.has_transmission and 0 < far_peak < 0.1 * top:
-            self.gain = 10.0 ** math.floor(math.log10(0.5 * top / far_peak))
+        self.gain = channel_gain(scan) if facts.scattering else 1.0
         e_lo = e_hi = 0.0
         if "potential" in curves:
             V = facts.V[keep]
@@ -209,21 +211,20 @@ class MovieFrame:
                                  family="DejaVu Sans Mono")
         self.moving.append(self.time_text)
         self.time_format = time_format(facts.times)
-        fig.suptitle(facts.title, color=look.text, fontsize=1.1 * font, y=0.975,
-                     family=look.family)
+        fig.suptitle(facts.title, color=look.text, fontsize=1.1 * font, family=look.family)
         if self.ruler:
-            axes.append(self._zoom_panel(fig, main_width, font, lw, u))
+            axes.append(self._zoom_panel(fig.add_subplot(grid[0, 1]), font, lw, u))
         apply_look(fig, axes, look, font)
-        self.canvas.draw()
+        fit_inside(fig)              # lays the panels out once (drawn), then they stay put
+        fig.set_layout_engine("none")
         self.background = self.canvas.copy_from_bbox(fig.bbox)
 
-    def _zoom_panel(self, fig, main_width: float, font: float, lw: float, u: dict):
+    def _zoom_panel(self, zoom, font: float, lw: float, u: dict):
         """The panel that follows the mirror's packet, with the ruler."""
         f, look, ruler = self.facts, self.look, self.ruler
         gap = f.packet.group_velocity * ruler.delay          # x_out − x_ref, signed
         half = max(3 * abs(gap), 0.05 * f.packet.width)
         zx = self.zoom_x = np.linspace(gap / 2 - half, gap / 2 + half, 400)
-        zoom = fig.add_axes((0.075 + main_width + 0.09, 0.12, 0.98 - main_width - 0.165, 0.70))
         zoom.set_xlim(zx[0], zx[-1])
         zoom.set_ylim(0, 1.35)
         zoom.set_xlabel(f"x − x_mirror(t) ({u['length']})")

@@ -71,6 +71,20 @@ def scan_run(run: RunFile, facts: RunFacts) -> Scan:
     return Scan(peak, ref_peak, facts.times, prob[0], cent[0], prob[1], cent[1], usable)
 
 
+def channel_gain(scan: Scan) -> float:
+    """The power of ten nearest to P_reflected/P_transmitted, which brings a small
+    transmitted part to within √10 of the reflected one's scale (1 when it is
+    not small or not there)."""
+    if not scan.has_transmission:
+        return 1.0
+    after = scan.usable if scan.usable.any() else np.ones_like(scan.usable)
+    p_t = float(np.median(scan.transmitted[after]))
+    p_r = float(np.median(scan.reflected[after]))
+    if not (0 < p_t < 0.1 * p_r):
+        return 1.0
+    return 10.0 ** round(math.log10(p_r / p_t))
+
+
 def run_delay(scan: Scan, facts: RunFacts) -> Optional[float]:
     """The reflected delay from the run's own centroids at the last usable
     snapshot (None when there is none)."""

@@ -22,6 +22,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from matplotlib.legend import Legend
+
 from ..errors import RenderError
 
 
@@ -94,3 +96,33 @@ def apply_look(fig, axes, look: Look, font: float) -> None:
             label.set_family(look.family)
         ax.xaxis.label.set_fontsize(font)
         ax.yaxis.label.set_fontsize(font)
+
+
+def _outside(box, canvas) -> bool:
+    return (box.x0 < canvas.x0 - 1 or box.y0 < canvas.y0 - 1 or box.x1 > canvas.x1 + 1
+            or box.y1 > canvas.y1 + 1)
+
+
+def fit_inside(fig, tries: int = 6) -> None:
+    """Shrink the type of any panel (ticks, labels, title, legend, texts) or
+    figure text that reaches past the canvas, by 15% a try, until nothing is
+    cut off: the last guard for unusual sizes. Leaves the canvas drawn."""
+    for _ in range(tries):
+        fig.canvas.draw()
+        renderer = fig.canvas.get_renderer()
+        shrink = [t for t in fig.texts if t.get_visible() and t.get_text()
+                  and _outside(t.get_window_extent(renderer), fig.bbox)]
+        for ax in fig.axes:
+            if not _outside(ax.get_tightbbox(renderer), fig.bbox):
+                continue
+            size = ax.xaxis.get_majorticklabels()[0].get_fontsize() if \
+                ax.xaxis.get_majorticklabels() else 10.0
+            ax.tick_params(labelsize=0.85 * size)
+            shrink += [ax.xaxis.label, ax.yaxis.label, ax.title, ax._left_title,
+                       *ax.texts, *[t for c in ax.get_children() if isinstance(c, Legend)
+                                    for t in c.get_texts()]]
+        if not shrink:
+            return
+        for text in shrink:
+            text.set_fontsize(0.85 * text.get_fontsize())
+    fig.canvas.draw()
