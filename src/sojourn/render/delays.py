@@ -47,12 +47,17 @@ def delay_panels(top, bottom, facts: RunFacts, look: Look, font: float, lw: floa
     shade.set_ylim(0, 1.15 * spectrum.max())
     shade.set_yticks([])
     shade.set_zorder(top.get_zorder() - 1)
+    shade.patch.set_visible(False)          # after the zorder, which shows it again
+    for spine in shade.spines.values():
+        spine.set_visible(False)
     top.patch.set_visible(False)
     curves = phase_delay(facts, energies)
     measured = channels(facts.analysis)
     handles, methods_seen = [], []
-    offsets = {m: (i - 1) * 0.15 * sigma_e for i, m in enumerate(MARKERS)}
-    for name, part in measured:
+    for c, (name, part) in enumerate(measured):
+        # each channel's points side by side about E₀, the methods spread within
+        offsets = {m: ((c - (len(measured) - 1) / 2) * 0.35 + (i - 1) * 0.1) * sigma_e
+                   for i, m in enumerate(MARKERS)}
         colour = look.reflected if name == "reflection" else look.transmitted
         doubt = untrusted(facts.analysis, name)
         if name in curves and np.any(np.isfinite(curves[name])):

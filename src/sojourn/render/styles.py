@@ -91,7 +91,8 @@ def apply_look(fig, axes, look: Look, font: float) -> None:
         for side in ("top", "right"):
             if ax is axes[0] and len(axes) == 1:
                 ax.spines[side].set_visible(False)
-        for label in (ax.xaxis.label, ax.yaxis.label, ax.title):
+        for label in (ax.xaxis.label, ax.yaxis.label, ax.title, ax._left_title,
+                      ax.xaxis.get_offset_text(), ax.yaxis.get_offset_text()):
             label.set_color(look.text)
             label.set_family(look.family)
         ax.xaxis.label.set_fontsize(font)
