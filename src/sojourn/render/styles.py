@@ -1,25 +1,28 @@
-"""sojourn's looks: one palette, fixed colours for each role, two styles.
+"""sojourn's looks: one palette, a fixed colour for each role, two styles.
 
-Roles and their colours (the same in every style, so a reader learns them once):
+Roles and their colours (the same roles in every style, so a reader learns
+them once):
 
-==============  =======================  ================================
-role            paper (light)            talk (dark)
-==============  =======================  ================================
-reflected       deep teal   #0b6e69      #3cc7b8
-transmitted     ochre       #b36b00      #f2a93b
-density (all)   ink blue    #23395b      #9fb7d9
-reference       slate       #6b7280      #aab2c0  (dashed)
-theory          plum        #7a2e6e      #d38bc4  (solid, thin)
-measurement     vermilion   #c8401e      #ff6f4f  (markers, ruler)
-potential       sand        #8c7a5b      #bfae8c
-==============  =======================  ================================
+==================  =============  =============  ==================================
+role                paper          talk (dark)    drawn as
+==================  =============  =============  ==================================
+reflected channel   #0b6e69 teal   #3cc7b8        |ψ|² on the incident side, points
+transmitted         #b36b00 ochre  #f2a93b        |ψ|² beyond the potential, points
+reference           #6b7280 slate  #aab2c0        dashed: ideal mirror, free packet
+theory              #7a2e6e plum   #d38bc4        predictions, E₀, residual zero
+measurement         #c8401e red    #ff6f4f        measured centroid, the delay ruler
+potential           #8c7a5b sand   #bfae8c        V(x), filled from its zero
+untrusted           #a8a8a8 grey   #6c707a        hollow markers
+==================  =============  =============  ==================================
 
-Type: a humanist sans (DejaVu Sans ships with matplotlib, so every machine
-draws the same glyphs), sizes scaled with the canvas height. Untrusted
-channels are drawn hollow and greyed (`untrusted`).
+Maps: cividis (paper), bone (talk). Type: DejaVu Sans (ships with matplotlib,
+so every machine draws the same glyphs), scaled with the canvas. Styles:
+"paper" (light, print sizes), "talk" = "talk-dark" (dark, movie sizes) and
+"talk-light" (the paper colours at movie sizes).
 """
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 from matplotlib.legend import Legend
@@ -108,6 +111,12 @@ def fit_inside(fig, tries: int = 6) -> None:
     """Shrink the type of any panel (ticks, labels, title, legend, texts) or
     figure text that reaches past the canvas, by 15% a try, until nothing is
     cut off: the last guard for unusual sizes. Leaves the canvas drawn."""
+    with warnings.catch_warnings():     # tiny canvases: the layout gives up, we shrink
+        warnings.filterwarnings("ignore", "constrained_layout not applied")
+        _fit(fig, tries)
+
+
+def _fit(fig, tries: int) -> None:
     for _ in range(tries):
         fig.canvas.draw()
         renderer = fig.canvas.get_renderer()
