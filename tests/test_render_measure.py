@@ -23,7 +23,8 @@ grid:
   points: {points}
 potential: {potential}
 packet:
-  center: -40.0
+  center: {center}
+  direction: {direction}
   width: 5.0
   energy: 0.5
 evolve:
@@ -41,11 +42,12 @@ BARRIER = "[{barrier: {start: 0.0, end: 4.15, height: 1.0}}]"
 
 
 def make(folder, name, potential=STEP, left=-100.0, right=60.0, points=512, duration=90.0,
-         every=6.0, title="Test packet at a unit step"):
+         every=6.0, title="Test packet at a unit step", center=-40.0, direction="right"):
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / f"{name}.yaml"
     path.write_text(SCENARIO.format(title=title, left=left, right=right, points=points,
-                                    potential=potential, duration=duration, every=every))
+                                    potential=potential, duration=duration, every=every,
+                                    center=center, direction=direction))
     out = folder / f"{name}.h5"
     assert cli.main(["run", str(path), "-o", str(out), "-q"]) == 0
     return out
@@ -113,6 +115,25 @@ def test_figure_ruler_at_1080p_is_the_delay_and_spans_40_pixels(tmp_path):
     ends = pixel_extent(ruler)
     assert abs(ends[1, 1] - ends[0, 1]) >= 40
     assert fig.canvas.get_width_height() == (1920, 1080)
+
+
+def test_ruler_has_the_measurement_sign_for_either_direction(tmp_path):
+    """A symmetric barrier delays a reflected packet equally from either side
+    (r is the same from both sides, each referenced at its own edge: parity,
+    common practice, no source): the ruler's τ agrees for a packet from the left
+    and its mirror image from the right, and both are positive (late)."""
+    centred = "[{barrier: {start: -2.075, end: 2.075, height: 1.0}}]"   # x → −x maps the
+    kw = dict(potential=centred, left=-120.0, right=120.0, points=1024, duration=100.0,
+              every=5.0)                                          # grid onto itself
+    delays = []
+    for name, center, direction in (("from_left", -40.0, "right"),
+                                    ("from_right", 40.0, "left")):
+        run = make(tmp_path / name, name, center=center, direction=direction, **kw)
+        with RunFile(run) as rf:
+            facts = render.run_facts(rf)
+            delays.append(render.reflection_ruler(render.scan_run(rf, facts), facts).delay)
+    assert delays[0] > 0 and delays[1] > 0
+    assert delays[1] == pytest.approx(delays[0], rel=1e-6)
 
 
 # ---------------------------------------------------------------------------------------

@@ -242,7 +242,7 @@ class MovieFrame:
         self.ruler_line, = zoom.plot([0, gap], [y, y], color=look.measurement,
                                      linewidth=1.2 * lw, marker="|", markersize=3 * lw + 8,
                                      markeredgewidth=lw, animated=True, gid="delay-ruler")
-        self.ruler_text = zoom.text(0.5, 0.16, ruler.label(self.time_unit), transform=zoom.transAxes,
+        self.ruler_text = zoom.text(0.5, 0.19, ruler.label(self.time_unit, "\n"), transform=zoom.transAxes,
                                     ha="center", va="bottom", color=look.measurement,
                                     fontsize=0.8 * font)
         self.zoom = zoom

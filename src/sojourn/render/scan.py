@@ -104,12 +104,12 @@ class Ruler:
     theory: Optional[float]
     theory_kind: str              # 'packet average' or 'phase delay at E₀'
 
-    def label(self, unit: str) -> str:
+    def label(self, unit: str, sep: str = ", ") -> str:
         """'τ = 5.67 fs, theory 5.67 fs' (packet average), or the phase delay named."""
         text = f"τ = {self.delay:.3g} {unit}"
         if self.theory is not None and math.isfinite(self.theory):
             name = "theory" if self.theory_kind == "packet average" else self.theory_kind
-            text += f", {name} {self.theory:.3g} {unit}"
+            text += f"{sep}{name} {self.theory:.3g} {unit}"
         return text
 
 
