@@ -164,6 +164,14 @@ class MovieFrame:
                                          extent=(self.xs[0], self.xs[-1], 0, top), origin="lower",
                                          aspect="auto", interpolation="nearest", animated=True)
             self.moving.append(self.phase_image)
+            key = ax.inset_axes((0.80, 0.90, 0.18, 0.035))     # the phase key: arg ψ
+            key.imshow(self.phase_lut[None, :, :3], aspect="auto", extent=(-math.pi, math.pi,
+                                                                           0, 1))
+            key.set_yticks([])
+            key.set_xticks([-math.pi, 0, math.pi], ["−π", "arg ψ = 0", "π"])
+            key.tick_params(colors=look.text, labelsize=0.6 * font, length=0)
+            for spine in key.spines.values():
+                spine.set_visible(False)
         if "reference" in curves:
             self.reference_line, = ax.plot(self.xs, zeros, color=look.reference,
                                            linewidth=0.8 * lw, linestyle=(0, (3, 1.5)),

@@ -13,10 +13,13 @@ theory              #7a2e6e plum   #d38bc4        predictions, E₀, residual ze
 measurement         #c8401e red    #ff6f4f        measured centroid, the delay ruler
 potential           #8c7a5b sand   #bfae8c        V(x), filled from its zero
 untrusted           #a8a8a8 grey   #6c707a        hollow markers
+Re ψ, Im ψ          #2f5fb3 blue,  #7aa6ff,       thin lines (scaled to the density)
+                    #7d8a2e olive  #c5d86d
 ==================  =============  =============  ==================================
 
-Maps: cividis (paper), bone (talk). Type: DejaVu Sans (ships with matplotlib,
-so every machine draws the same glyphs), scaled with the canvas. Styles:
+Maps: cividis (paper), bone (talk); phase as hue: twilight, with its key.
+Type: DejaVu Sans (ships with matplotlib, so every machine draws the same
+glyphs), scaled with the canvas. Styles:
 "paper" (light, print sizes), "talk" = "talk-dark" (dark, movie sizes) and
 "talk-light" (the paper colours at movie sizes).
 """
@@ -57,12 +60,12 @@ class Look:
 
 
 PAPER = Look(background="#fbfaf7", text="#1d1d1f", grid="#e4e1da", density="#23395b",
-             reflected="#0b6e69", transmitted="#b36b00", real="#0b6e69", imag="#b36b00",
+             reflected="#0b6e69", transmitted="#b36b00", real="#2f5fb3", imag="#7d8a2e",
              reference="#6b7280", theory="#7a2e6e", measurement="#c8401e", potential="#8c7a5b",
              energy="#7a2e6e", untrusted="#a8a8a8", font=14, line=1.6, cmap="cividis",
              trajectory="#c8401e")
 TALK = Look(background="#15181f", text="#ecebe6", grid="#2f3441", density="#9fb7d9",
-            reflected="#3cc7b8", transmitted="#f2a93b", real="#3cc7b8", imag="#f2a93b",
+            reflected="#3cc7b8", transmitted="#f2a93b", real="#7aa6ff", imag="#c5d86d",
             reference="#aab2c0", theory="#d38bc4", measurement="#ff6f4f", potential="#bfae8c",
             energy="#d38bc4", untrusted="#6c707a", font=26, line=4.0, cmap="bone",
             trajectory="#ff6f4f")
