@@ -20,7 +20,7 @@ import time
 from importlib import resources
 from pathlib import Path
 
-from sojourn.render import core as render
+from sojourn import render
 from sojourn.build import build
 from sojourn.workflows import run as execute
 from sojourn.store import RunFile
@@ -38,7 +38,7 @@ def draw_rate(path: Path, options: render.MovieOptions) -> tuple[float, float, i
     start = time.perf_counter()
     with RunFile(path) as run:
         facts = render.run_facts(run)
-        frame = render.MovieFrame(facts, options, render.peak_density(run, facts, options))
+        frame = render.MovieFrame(facts, options, render.scan_run(run, facts))
         setup = time.perf_counter() - start
         count = 0
         start = time.perf_counter()

@@ -13,7 +13,7 @@ import pytest
 from scipy import integrate
 
 from sojourn import cli
-from sojourn.render import core as render
+from sojourn import render
 from sojourn.model.packets import describe, free_evolution
 from sojourn.store import RunFile
 
@@ -86,7 +86,7 @@ def test_frames_change_with_time_and_reuse_one_figure(run):
     options = render.MovieOptions(size=(256, 144))
     with RunFile(run) as rf:
         facts = render.run_facts(rf)
-        frame = render.MovieFrame(facts, options, render.peak_density(rf, facts, options))
+        frame = render.MovieFrame(facts, options, render.scan_run(rf, facts))
         children = [len(ax.get_children()) for ax in frame.fig.axes]
         snaps = list(rf.snapshots())
         first = frame.draw(*snaps[0]).copy()
@@ -184,7 +184,7 @@ def test_delay_panel_shows_the_step_phase_delay(run, tmp_path):
     copy.write_bytes(run.read_bytes())
     assert cli.main(["delay", str(copy), "--save"]) == 0
     fig = render.figure(copy, render.FigureOptions())
-    assert len([ax for ax in fig.axes if ax.get_xlabel().startswith("E")]) == 1
+    assert len([ax for ax in fig.axes if ax.get_xlabel().startswith("packet energy")]) == 1
     curve = next(line for ax in fig.axes for line in ax.get_lines()
                  if line.get_gid() == "theory-reflection")
     energy, tau = (np.asarray(a, float) for a in curve.get_data())
@@ -197,7 +197,7 @@ def test_delay_panel_shows_the_step_phase_delay(run, tmp_path):
 
 def test_figure_without_analysis_has_one_panel(run):
     fig = render.figure(run, render.FigureOptions())
-    assert not any(ax.get_xlabel().startswith("E") for ax in fig.axes)
+    assert not any(ax.get_xlabel().startswith("packet energy") for ax in fig.axes)
 
 
 # ---------------------------------------------------------------------------------------

@@ -271,7 +271,7 @@ VERBS.append(add_theory)
 # --- render
 
 def cmd_render(args) -> int:
-    from .render import core as render
+    from . import render
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
     common = {}
@@ -285,7 +285,7 @@ def cmd_render(args) -> int:
             {"size": render.parse_size(figure_size, "in")} if figure_size else {}), **(
             {"dpi": args.dpi} if args.dpi else {}))
     if args.output:
-        movie = render.MovieOptions(fps=args.fps, **common, **(
+        movie = render.MovieOptions(fps=args.fps, seconds=args.seconds, **common, **(
             {"size": render.parse_size(args.size, "px")} if args.size else {}), **(
             {"curves": render.parse_curves(args.curves)} if args.curves else {}))
         update, close = _frame_bar(args.quiet)
@@ -304,15 +304,20 @@ def add_render(sub) -> None:
     p.add_argument("file", help="a run file")
     p.add_argument("-o", "--output", metavar="MOVIE", help="movie: .mp4 (H.264) or .gif")
     p.add_argument("--figure", metavar="FIG", help="space-time figure: .png, .pdf or .svg")
-    p.add_argument("--size", help="movie WxH in pixels (default 1920x1080); with --figure "
-                                  "alone, the figure's size (as --figure-size)")
-    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in inches (e.g. 7x4.5), or "
-                                                        "in pixels with 'px' (e.g. 2100x1350px)")
+    p.add_argument("--size", help="movie WxH in pixels (default 1920x1080) or inches "
+                                  "(7x4.5in); with --figure alone, the figure's size "
+                                  "(as --figure-size)")
+    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in inches (7x4.5 or "
+                                                        "7x4.5in), or in pixels with 'px' "
+                                                        "(1920x1080px)")
     p.add_argument("--fps", type=float, default=30.0, help="movie frames per second (default 30)")
-    p.add_argument("--style", choices=["talk-dark", "talk-light", "paper"],
+    p.add_argument("--seconds", type=float, help="movie length in seconds (default: one frame per "
+                                                 "snapshot); states between snapshots are "
+                                                 "propagated with the run's own scheme")
+    p.add_argument("--style", choices=["talk-dark", "talk-light", "paper", "talk"],
                    help="look (default: talk-dark for movies, paper for figures)")
-    p.add_argument("--xlim", metavar="A:B", help="x range, e.g. --xlim=-300:100 (default: the "
-                                                 "box inside the absorbers)")
+    p.add_argument("--xlim", metavar="A:B", help="x range, e.g. --xlim=-300:100 (default: where "
+                                                 "the probability goes and the potential)")
     p.add_argument("--curves", help="movie curves, comma-separated from density, real, imag, "
                                     "phase, reference, potential (default density,reference,potential)")
     p.add_argument("--log", action="store_true", help="figure: logarithmic colour scale")
@@ -322,7 +327,7 @@ def add_render(sub) -> None:
 
 
 def demo_render(run_path, out_folder, args) -> None:
-    from .render import core as render
+    from . import render
     update, close = _frame_bar(getattr(args, "quiet", False))
     try:   # 720p keeps the demo quick; talks get 1080p by default
         movie = render.render_movie(run_path, Path(out_folder) / "demo.mp4",
