@@ -11,18 +11,11 @@ from sojourn.build import build
 from sojourn.config.scenario import loads
 from sojourn.engine import propagate
 from sojourn.engine.loop import evolve
+from scenarios import small_step
 
-SMALL = """\
-units: atomic
-grid: {span: [-300.0, 300.0], points: 512}
-potential:
-  - step: {at: 0.0, height: 1.0}
-packet: {center: -100.0, width: 10.0, energy: 0.5}
-evolve: {duration: 40.0, dt: 0.05}
-absorber: {width: 50.0}
-record: {every: 5.0, sample_steps: 4}
-measure: {detectors: [-50.0, 20.0]}
-"""
+
+SMALL = small_step({"evolve.duration": 40.0, "record.sample_steps": 4,
+                    "measure.detectors": [-50.0, 20.0]})
 
 
 class Recorder:

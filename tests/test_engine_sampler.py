@@ -6,17 +6,13 @@ import pytest
 from sojourn.build import build
 from sojourn.config.scenario import loads
 from sojourn.engine.sampler import Sampler
+from scenarios import small_step
 
-CASE = """\
-units: atomic
-grid: {span: [-300.0, 300.0], points: 512}
-potential:
-  - barrier: {start: 0.0, end: 2.0, height: 0.6}
-packet: {center: -100.0, width: 10.0, energy: 0.5}
-evolve: {duration: 40.0, dt: 0.05}
-absorber: {width: 50.0}
-measure: {detectors: [-50.0, 60.0, 70.0], region: [0.0, 2.0]}
-"""
+
+CHANGES = {"potential.0": {"barrier": {"start": 0.0, "end": 2.0, "height": 0.6}},
+           "evolve.duration": 40.0, "record": None,
+           "measure": {"detectors": [-50.0, 60.0, 70.0], "region": [0.0, 2.0]}}
+CASE = small_step(CHANGES)
 
 
 @pytest.fixture(scope="module")
@@ -39,7 +35,7 @@ def test_a_batch_holds_each_sample_once_and_resets(setup):
 
 
 def test_without_detectors_the_flux_column_is_zero():
-    setup = build(loads(CASE.replace("detectors: [-50.0, 60.0, 70.0], ", "detectors: [], "),
+    setup = build(loads(small_step({**CHANGES, "measure.detectors": []}),
                         "none.yaml"))
     sampler = Sampler(setup)
     sampler.take(setup.psi0(), 0.0)

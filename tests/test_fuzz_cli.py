@@ -12,23 +12,16 @@ from hypothesis import strategies as st
 
 from sojourn.cli import main
 from sojourn.errors import ScenarioError
+from scenarios import tiny_step
+
 
 SHORT = settings(max_examples=80, deadline=None, database=None, derandomize=True,
                  suppress_health_check=list(HealthCheck))
 LONG = settings(max_examples=1500, deadline=None, database=None,
                 suppress_health_check=list(HealthCheck))
 
-TINY = """\
-title: tiny
-units: atomic
-grid: {span: [-200.0, 200.0], points: 512}
-potential:
-  - step: {at: 0.0, height: 1.0}
-packet: {center: -60.0, width: 8.0, energy: 0.5}
-evolve: {duration: 10.0, dt: 0.05}
-absorber: {width: 40.0}
-record: {every: 5.0}
-"""
+TINY = tiny_step({"title": "tiny", "grid.points": 512, "packet.width": 8.0,
+                  "evolve.duration": 10.0, "measure": None})
 
 
 @pytest.fixture(scope="module")

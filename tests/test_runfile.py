@@ -11,19 +11,10 @@ from sojourn.workflows import run as execute
 from sojourn.store import FORMAT, RunFile, partial_path
 from sojourn.errors import RunFileError
 from sojourn.config.scenario import load
+from scenarios import small_step
 
-SMALL = """\
-title: small step
-units: atomic
-grid: {span: [-300.0, 300.0], points: 512}
-potential:
-  - step: {at: 0.0, height: 1.0}
-packet: {center: -100.0, width: 10.0, energy: 0.5}
-evolve: {duration: 60.0, dt: 0.05}
-absorber: {width: 50.0}
-record: {every: 5.0}
-measure: {detectors: [-50.0]}
-"""
+
+SMALL = small_step({"measure.detectors": [-50.0]})
 
 
 def digest(path):

@@ -15,19 +15,10 @@ from sojourn.errors import RunFileError
 from sojourn.store import RunFile, RunWriter, partial_path, save_analysis
 from sojourn.store import writer as writer_module
 from sojourn.workflows import run as execute
+from scenarios import tiny_step
 
-SMALL = """\
-title: commit
-units: atomic
-grid: {span: [-200.0, 200.0], points: 256}
-potential:
-  - step: {at: 0.0, height: 1.0}
-packet: {center: -60.0, width: 10.0, energy: 0.5}
-evolve: {duration: 40.0, dt: 0.05}
-absorber: {width: 40.0}
-record: {every: 5.0}
-measure: {detectors: [-30.0]}
-"""
+
+SMALL = tiny_step({"title": "commit", "evolve.duration": 40.0})
 
 
 def test_a_stop_before_the_counter_keeps_the_previous_commit(write_scenario, tmp_path,

@@ -14,19 +14,10 @@ from sojourn.cli import main
 from sojourn.errors import RunFileError
 from sojourn.store import RunFile
 from sojourn.store.layout import DATASETS, ROOT_ATTRS, SLOT_ATTRS, SLOTS
+from scenarios import tiny_step
 
-VALID = """\
-title: corpus
-units: atomic
-grid: {span: [-200.0, 200.0], points: 256}
-potential:
-  - step: {at: 0.0, height: 1.0}
-packet: {center: -60.0, width: 10.0, energy: 0.5}
-evolve: {duration: 20.0, dt: 0.05}
-absorber: {width: 40.0}
-record: {every: 5.0}
-measure: {detectors: [-30.0], region: [0.0, 10.0]}
-"""
+
+VALID = tiny_step({"title": "corpus", "measure.region": [0.0, 10.0]})
 
 
 def _delete_attr(node_name, key):

@@ -11,19 +11,11 @@ from sojourn.config.scenario import load
 from sojourn.measure import measure_delays
 from sojourn.store import MemoryRun, RunFile, RunReader, partial_path
 from sojourn.workflows import run as execute, run_in_memory
+from scenarios import small_step
 
-STEP = """\
-title: small step
-units: atomic
-grid: {span: [-300.0, 300.0], points: 512}
-potential:
-  - step: {at: 0.0, height: 1.0}
-packet: {center: -100.0, width: 10.0, energy: 0.5}
-evolve: {duration: 250.0, dt: 0.05}
-absorber: {width: 50.0}
-record: {every: 10.0}
-measure: {detectors: [-50.0], region: [0.0, 20.0]}
-"""
+
+STEP = small_step({"evolve.duration": 250.0, "record.every": 10.0,
+                   "measure.region": [0.0, 20.0]})
 # attributes that depend on when and where the run was made
 VOLATILE = {"created", "finished", "provenance", "status"}
 
