@@ -85,3 +85,28 @@ def test_with_changes_keeps_a_default_as_a_default():
     assert build(same).sample_steps == build(scenario).sample_steps > 1
     explicit = with_changes(scenario, {"record.sample_steps": 1})
     assert build(explicit).sample_steps == 1
+
+
+TABLE = """\
+units: atomic
+grid: {span: [-100.0, 100.0], points: 1024}
+potential:
+  - step: {at: 0.0, height: 1.0}
+  - table: {file: pot.csv}
+packet: {center: -50.0, width: 5.0, energy: 0.5}
+evolve: {duration: 10.0}
+"""
+
+
+def test_a_bad_table_row_names_line_key_and_row(tmp_path):
+    (tmp_path / "pot.csv").write_text("x,V\n0,0\n1,abc\n")
+    with pytest.raises(ScenarioError, match=r"s\.yaml:5: potential\[1\]\.table: .*row 3: expected two"):
+        loads(TABLE, "s.yaml", tmp_path)
+
+
+def test_a_huge_table_file_is_refused_before_reading(tmp_path):
+    big = tmp_path / "pot.csv"
+    with open(big, "wb") as handle:     # a sparse 1 GB file: refused by its size alone
+        handle.truncate(1 << 30)
+    with pytest.raises(ScenarioError, match=r"s\.yaml:5: potential\[1\]\.table\.file: .* at most 64 MiB"):
+        loads(TABLE, "s.yaml", tmp_path)
