@@ -50,3 +50,31 @@ def test_component_axis_shape_checks():
     prop = Propagator(setup.grid, np.stack([setup.V, setup.V]), 1.0, 1.0, 0.1)
     with pytest.raises(ValueError):
         prop.set_state(setup.psi0())
+
+
+def test_delay_report_gains_larmor_blocks_and_the_tunnelling_table():
+    from sojourn.cli_format import format_tunnelling_times
+    from sojourn.measure.delays import measure_delays
+    from sojourn.measure.larmor import measure_spinor_runs, with_larmor
+    sc = loads(SCENARIO)
+    up, down = (run_in_memory(build(s)) for s in component_scenarios(sc))
+    blocks = measure_spinor_runs(sc, up, down)
+    # the report of the unperturbed scenario, with the clock's blocks attached
+    report = with_larmor(measure_delays(run_in_memory(build(sc))).to_dict(), blocks)
+    for channel in ("reflection", "transmission"):
+        block = report[channel]["larmor"]
+        assert block["omega"] == 0.02
+        assert set(block) >= {"tau_y", "tau_z", "tau", "spin"}
+        assert set(block["tau_y"]) >= {"measured", "predicted", "deviation", "error"}
+    # the dwell identity T·τ_y^T + R·τ_y^R = τ_D (Büttiker 1983) between two
+    # independent measurements of one run: the spin of the outgoing packets and
+    # ∫P_region dt (both carry this grid's error of the barrier's sampled width)
+    T, R = (blocks[c]["probability"] for c in ("transmission", "reflection"))
+    lhs = T * blocks["transmission"]["tau_y"]["measured"] + R * blocks["reflection"]["tau_y"]["measured"]
+    assert lhs == pytest.approx(report["reflection"]["dwell"]["measured"], rel=2e-3)
+    lines = format_tunnelling_times(report, "ħ/Eₕ")
+    assert lines[0].startswith("tunnelling times")
+    assert any(line.strip().startswith("Larmor τ_y") for line in lines)
+    assert any(line.strip().startswith("dwell") for line in lines)
+    with pytest.raises(Exception):
+        measure_spinor_runs(sc, up, object())

@@ -17,6 +17,7 @@ import numpy as np
 
 from ..config.scenario import Scenario, with_changes
 from ..errors import MeasureError
+from ..model.packets import PacketInfo
 from ..theory.larmor import packet_larmor, spin_vector, times_from_spin
 
 CHANNELS = ("reflection", "transmission")
@@ -107,4 +108,41 @@ def measure_spinor(x, up, down, edges, scenario: Scenario, packet) -> dict:
             continue
         out[channel] = larmor_entry(spin, omega, pred.get(channel))
         out[channel]["probability"] = prob
+    return out
+
+
+def measure_spinor_runs(scenario: Scenario, up_run, down_run) -> dict:
+    """The ``"larmor"`` blocks per channel from the two components' runs (run-file
+    readers or MemoryRuns of `component_scenarios(scenario)`), at their last
+    snapshot; the channels lie outside the potential's extent."""
+    for name, run in (("spin-up run", up_run), ("spin-down run", down_run)):
+        if not all(hasattr(run, a) for a in ("x", "times", "psi", "packet")):
+            raise MeasureError(f"the {name} must be a run-file reader, not "
+                               f"{type(run).__name__}")
+    x = np.asarray(up_run.x)
+    if not (np.array_equal(x, np.asarray(down_run.x))
+            and np.array_equal(np.asarray(up_run.times), np.asarray(down_run.times))):
+        raise MeasureError("the two spin components were not run on the same grid and times")
+    support = scenario.build_potential().support()
+    if support is None:
+        raise MeasureError("the potential has no extent: no outgoing channels to read")
+    region, _ = clock(scenario)
+    edges = (min(support[0], region[0]), max(support[1], region[1]))
+    last = len(up_run.times) - 1
+    from_run = up_run.packet
+    packet = from_run if hasattr(from_run, "k0") else _packet_info(from_run)
+    return measure_spinor(x, up_run.psi(last), down_run.psi(last), edges, scenario, packet)
+
+
+def _packet_info(fields) -> PacketInfo:
+    return PacketInfo(**fields)
+
+
+def with_larmor(report: dict, blocks: dict) -> dict:
+    """A `sojourn delay --json` report with each measured channel's ``"larmor"``
+    block added (channels the report has not measured are left as they are)."""
+    out = dict(report)
+    for channel in CHANNELS:
+        if out.get(channel) is not None and channel in blocks:
+            out[channel] = dict(out[channel], larmor=blocks[channel])
     return out
