@@ -43,3 +43,9 @@ def test_bad_larmor_keys_are_one_line_errors(write_scenario):
     text = CONFIG.read_text().replace("region: [0.0, 2.0]", "region: [2.0, 0.0]")
     out = sojourn("theory", write_scenario(text, "b.yaml"))
     assert out.returncode == 2 and "larmor.region" in out.stderr
+
+
+def test_theory_plot_draws_the_clocks(tmp_path):
+    out = sojourn("theory", CONFIG, "--plot", tmp_path / "clocks.png", "--energies", "0.2:0.9:30")
+    assert out.returncode == 0, out.stderr
+    assert (tmp_path / "clocks.png").stat().st_size > 10_000

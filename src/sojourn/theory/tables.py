@@ -246,6 +246,12 @@ def plot_theory(table: dict, path) -> None:
     ax2.plot(E, arr("delay_reflection"), label=r"$\tau_R$")
     ax2.plot(E, arr("delay_transmission"), label=r"$\tau_T$")
     ax2.plot(E, arr("dwell"), label=r"$\tau_D$", linestyle="--")
+    if "tau_y_transmission" in table:       # a Larmor clock: its times beside the others
+        for key, label, style in (("tau_y_transmission", r"$\tau_y^T$", ":"),
+                                  ("tau_z_transmission", r"$\tau_z^T$", "-."),
+                                  ("tau_y_reflection", r"$\tau_y^R$", ":"),
+                                  ("tau_z_reflection", r"$\tau_z^R$", "-.")):
+            ax2.plot(E, arr(key), label=label, linestyle=style)
     ax2.set_ylabel(f"delay [{u['time']}]")
     ax2.set_xlabel(f"energy [{u['energy']}]")
     spec = table.get("packet_spectrum")
