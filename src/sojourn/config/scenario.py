@@ -99,6 +99,22 @@ class MeasureSpec(_Strict):
         return region
 
 
+class LarmorSpec(_Strict):
+    """A Larmor clock: a weak field along z over `region` (default: the
+    potential's extent); spin up sees V + ħω/2 there, spin down V − ħω/2."""
+
+    region: Optional[tuple[float, float]] = None
+    omega: float = Field(gt=0, description="Larmor angular frequency (1/time unit)")
+
+    @field_validator("region")
+    @classmethod
+    def _ordered(cls, region):
+        if region is not None and not region[1] > region[0]:
+            raise ValueError(f"must be [start, end] with end > start (got [{region[0]:g}, "
+                             f"{region[1]:g}])")
+        return region
+
+
 def _term_kind(value: Any) -> Optional[str]:
     if isinstance(value, BaseModel):   # serialising: the item model's one field is its kind
         return next(iter(type(value).model_fields))
@@ -136,6 +152,7 @@ class Scenario(_Strict):
     absorber: Optional[AbsorberSpec] = None
     record: RecordSpec = RecordSpec()
     measure: MeasureSpec = MeasureSpec()
+    larmor: Optional[LarmorSpec] = None
 
     # Filled in by load(): where it came from, for messages and relative paths.
     source: Optional[str] = Field(default=None, exclude=True)

@@ -102,11 +102,14 @@ class Propagator:
     Parameters
     ----------
     grid : Grid (anything with ``shape``, ``k_squared``)
-    V : real potential on the grid's shape
+    V : real potential on the grid's shape, or with a leading component axis
+        (C, *grid.shape): C independent components, each kicked by its own
+        potential and drifted alike (a spinor in a field along z); ψ then has
+        that shape too
     hbar, mass : in the scenario's units
     dt : time step (> 0)
     scheme : a name in SCHEMES
-    absorber : W(x) ≥ 0 on the grid's shape, or None
+    absorber : W(x) ≥ 0 on the grid's shape (shared by all components), or None
     single : compute in complex64 instead of complex128
 
     State: ``step`` (steps taken since t = 0), ``time`` (= step·dt), ``status``:
@@ -122,17 +125,21 @@ class Propagator:
         weights = _known(scheme).drifts
         self.hbar, self.mass = _positive("hbar", hbar), _positive("mass", mass)
         self.dt = _positive("dt", dt)
-        shape = tuple(grid.shape)
+        space = tuple(grid.shape)
+        V = np.asarray(V, dtype=float)
+        lead = V.shape[:1] if V.ndim == len(space) + 1 else ()
+        shape = lead + space
         potential = _on_grid("V", V, shape)
-        W = None if absorber is None else _on_grid("the absorber W", absorber, shape)
+        W = None if absorber is None else _on_grid("the absorber W", absorber, space)
         if W is not None and np.any(W < 0):
             raise ValueError("the absorber W must be ≥ 0 (it removes probability)")
         self.grid, self.scheme, self.absorber = grid, scheme, W
         dtype = np.complex64 if single else np.complex128
-        self.fft = FFTPair(shape, dtype=dtype, threads=threads)
+        self.fft = FFTPair(shape, dtype=dtype, threads=threads,
+                           axes=tuple(range(len(lead), len(shape))))
         self.buffer = self.fft.buffer
         self.step, self.status = 0, "empty"
-        points = math.prod(shape)
+        points = math.prod(space)
         U = potential if W is None else potential - 1j * W
 
         def kick(c):

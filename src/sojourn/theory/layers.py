@@ -144,11 +144,18 @@ class Solution:
 
 
 def _solve(layers: Layers, E: np.ndarray, hbar: float, mass: float,
-           x_r: float, x_t: float, amplitudes: bool) -> Solution:
-    """r, t, dr/dE, dt/dE for constant layers at energies E (all above the left level)."""
+           x_r: float, x_t: float, amplitudes: bool, level_weights=None) -> Solution:
+    """r, t, dr/dE, dt/dE for constant layers at energies E (all above the left level).
+
+    With ``level_weights`` w (M+1,) the returned derivatives are
+    Σ_i w_i ∂/∂(E − V_i) (each dk_i/dE scaled by w_i): all 1 is d/dE; −1 on a
+    subset of layers and 0 elsewhere is ∂/∂V for a uniform shift V of those
+    layers' levels (the Larmor clock's derivative)."""
     b, g = layers.boundaries, layers.couplings
     M, nE = len(b), len(E)
     K, DK = _wavenumbers(E, layers.levels, hbar, mass)
+    if level_weights is not None:
+        DK = DK * np.asarray(level_weights, dtype=float)[:, None]
     if M == 0:
         t = np.exp(1j * K[0] * (x_t - x_r))
         return Solution(np.zeros(nE, complex), t, np.zeros(nE, complex),
@@ -226,16 +233,20 @@ def _level_shifts(layers: Layers, E: np.ndarray, hbar: float, mass: float) -> np
 
 
 def solve_layers(layers: Layers, E: np.ndarray, hbar: float, mass: float,
-                 x_r: float, x_t: float, amplitudes: bool = False) -> Solution:
+                 x_r: float, x_t: float, amplitudes: bool = False,
+                 level_weights=None) -> Solution:
     """`_solve`, regular at an inner layer's level (where e^{±ikx} degenerate):
     there r, t and their derivatives are the mean over E ± δ, and the states and
-    dwell times are the mean of the states at E ± δ (all analytic in E)."""
+    dwell times are the mean of the states at E ± δ (all analytic in E).
+    ``level_weights``: see `_solve` (derivatives along a subset of levels)."""
     delta = _level_shifts(layers, E, hbar, mass)
-    sol = _solve(layers, E, hbar, mass, x_r, x_t, amplitudes)
+    sol = _solve(layers, E, hbar, mass, x_r, x_t, amplitudes, level_weights)
     hit = delta > 0
     if np.any(hit):
-        lo = _solve(layers, E[hit] - delta[hit], hbar, mass, x_r, x_t, amplitudes)
-        hi = _solve(layers, E[hit] + delta[hit], hbar, mass, x_r, x_t, amplitudes)
+        lo = _solve(layers, E[hit] - delta[hit], hbar, mass, x_r, x_t, amplitudes,
+                    level_weights)
+        hi = _solve(layers, E[hit] + delta[hit], hbar, mass, x_r, x_t, amplitudes,
+                    level_weights)
         for name in ("r", "t", "dr", "dt"):
             getattr(sol, name)[hit] = 0.5 * (getattr(lo, name) + getattr(hi, name))
         sol.shifted = (hit, lo, hi)

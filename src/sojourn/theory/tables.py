@@ -13,6 +13,7 @@ from ..model.grid import Grid
 from ..model.packets import PacketInfo, describe
 from ..model.potentials import Potential
 from .averages import packet_prediction
+from .larmor import larmor_times, packet_larmor
 from .layers import check_scattering
 from .scattering import scatter
 
@@ -120,6 +121,8 @@ def theory_table(scenario, energies=None, *, packet: bool = True) -> dict:
         "delay_transmission": _clean(sc.delay_transmission),
         "dwell": _clean(sc.dwell) if sc.dwell is not None else [None] * len(sc.energy),
     }
+    if getattr(scenario, "larmor", None) is not None:
+        table.update(_larmor_columns(scenario, inputs, sc.energy, direction, packet))
     if packet:
         pred = packet_prediction(pot, info, hbar=inputs.hbar, mass=inputs.mass,
                                  reference=inputs.reference, region=inputs.region)
@@ -134,12 +137,39 @@ def theory_table(scenario, energies=None, *, packet: bool = True) -> dict:
 
 COLUMNS = ("energy", "R", "T", "phase_reflection", "phase_transmission",
            "delay_reflection", "delay_transmission", "dwell")
+LARMOR_COLUMNS = ("tau_y_reflection", "tau_z_reflection", "tau_y_transmission",
+                  "tau_z_transmission")
+
+
+def _larmor_columns(scenario, inputs: TheoryInputs, E, direction: str, packet: bool) -> dict:
+    """Larmor times of both channels (and their packet averages) for a scenario
+    with a ``larmor`` clock; the region defaults to the potential's extent."""
+    spec = scenario.larmor
+    region = tuple(spec.region) if spec.region is not None else inputs.potential.support()
+    lt = larmor_times(inputs.potential, E, hbar=inputs.hbar, region=region,
+                      direction=direction)
+    out = {"larmor_region": _clean(lt.region), "larmor_omega": float(spec.omega)}
+    out.update({name: _clean(getattr(lt, name)) for name in LARMOR_COLUMNS})
+    if packet:
+        info = inputs.packet
+        avg = packet_larmor(inputs.potential, info.k0, info.sigma_k, info.level,
+                            hbar=inputs.hbar, omega=spec.omega, region=region)
+        out["larmor_packet"] = {
+            name: None if ch is None else {key: (list(v) if isinstance(v, tuple) else v)
+                                           for key, v in ch.items()}
+            for name, ch in avg.items()}
+    return out
+
+
+def _columns(table: dict) -> tuple:
+    return COLUMNS + (LARMOR_COLUMNS if "tau_y_transmission" in table else ())
 
 
 def table_csv(table: dict) -> str:
     """The per-energy columns as CSV text (empty fields where undefined)."""
-    lines = [",".join(COLUMNS)]
-    for row in zip(*(table[c] for c in COLUMNS)):
+    cols = _columns(table)
+    lines = [",".join(cols)]
+    for row in zip(*(table[c] for c in cols)):
         lines.append(",".join("" if v is None else repr(v) for v in row))
     return "\n".join(lines) + "\n"
 
@@ -149,8 +179,11 @@ def format_table(table: dict) -> str:
     u = table["units"]
     heads = [f"E [{u['energy']}]", "R", "T", "phi_r [rad]", "phi_t [rad]",
              f"tau_R [{u['time']}]", f"tau_T [{u['time']}]", f"dwell [{u['time']}]"]
+    cols = _columns(table)
+    if len(cols) > len(COLUMNS):
+        heads += [f"{n} [{u['time']}]" for n in ("tauy_R", "tauz_R", "tauy_T", "tauz_T")]
     rows = [heads]
-    for row in zip(*(table[c] for c in COLUMNS)):
+    for row in zip(*(table[c] for c in cols)):
         rows.append(["-" if v is None else f"{v:.6g}" for v in row])
     width = [max(len(r[i]) for r in rows) for i in range(len(heads))]
     text = [f"# {table.get('scenario', '')}",
@@ -176,6 +209,18 @@ def format_table(table: dict) -> str:
         text.append(f"  dwell (packet) = {fmt(pk['dwell'])} {u['time']}")
         for w in pk["warnings"]:
             text.append(f"  warning: {w}")
+    lp = table.get("larmor_packet")
+    if lp:
+        a, b = table["larmor_region"]
+        text.append(f"Larmor clock on [{a:g}, {b:g}] {u['length']}, omega_L = "
+                    f"{table['larmor_omega']:g} per {u['time']} (packet averages, weights "
+                    f"|psi0(k)|^2 R or T):")
+        for name in ("reflection", "transmission"):
+            ch = lp.get(name)
+            if ch:
+                text.append(f"  {name:12s} tau_y = {ch['tau_y']:.8g}  tau_z = {ch['tau_z']:.8g}  "
+                            f"tau = {ch['tau']:.8g} {u['time']}  (at omega_L: tau_y = "
+                            f"{ch['tau_y_exact']:.8g}, tau_z = {ch['tau_z_exact']:.8g})")
     return "\n".join(text) + "\n"
 
 
@@ -201,6 +246,12 @@ def plot_theory(table: dict, path) -> None:
     ax2.plot(E, arr("delay_reflection"), label=r"$\tau_R$")
     ax2.plot(E, arr("delay_transmission"), label=r"$\tau_T$")
     ax2.plot(E, arr("dwell"), label=r"$\tau_D$", linestyle="--")
+    if "tau_y_transmission" in table:       # a Larmor clock: its times beside the others
+        for key, label, style in (("tau_y_transmission", r"$\tau_y^T$", ":"),
+                                  ("tau_z_transmission", r"$\tau_z^T$", "-."),
+                                  ("tau_y_reflection", r"$\tau_y^R$", ":"),
+                                  ("tau_z_reflection", r"$\tau_z^R$", "-.")):
+            ax2.plot(E, arr(key), label=label, linestyle=style)
     ax2.set_ylabel(f"delay [{u['time']}]")
     ax2.set_xlabel(f"energy [{u['energy']}]")
     spec = table.get("packet_spectrum")
