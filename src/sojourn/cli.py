@@ -307,9 +307,8 @@ def add_render(sub) -> None:
     p.add_argument("--size", help="movie WxH in pixels (default 1920x1080) or inches "
                                   "(7x4.5in); with --figure alone, the figure's size "
                                   "(as --figure-size)")
-    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in inches (7x4.5 or "
-                                                        "7x4.5in), or in pixels with 'px' "
-                                                        "(1920x1080px)")
+    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in pixels (2100x1350, "
+                                                        "made at --dpi) or inches (7x4.5in)")
     p.add_argument("--fps", type=float, default=30.0, help="movie frames per second (default 30)")
     p.add_argument("--seconds", type=float, help="movie length in seconds (default: one frame per "
                                                  "snapshot); states between snapshots are "
