@@ -141,11 +141,11 @@ def test_figures_in_each_format_have_the_requested_size(run, tmp_path):
     assert iio.imread(png).shape[:2] == (500, 800)
     movie = tmp_path / "m.gif"   # with a movie too, --size is the movie's, --figure-size the figure's
     assert cli.main(["render", str(run), "-o", str(movie), "--size", "96x64", "--figure", str(pdf),
-                     "--figure-size", "4x3", "-q"]) == 0
+                     "--figure-size", "4x3in", "-q"]) == 0
     assert iio.imread(movie, index=0).shape[:2] == (64, 96)
     box = re.search(rb"/MediaBox\s*\[\s*0 0 ([\d.]+) ([\d.]+)\s*\]", pdf.read_bytes())
     assert box and (float(box[1]), float(box[2])) == (288.0, 216.0)   # 72 pt per inch
-    assert cli.main(["render", str(run), "--figure", str(svg), "--size", "4x3"]) == 0
+    assert cli.main(["render", str(run), "--figure", str(svg), "--size", "4x3in"]) == 0
     head = svg.read_text()[:2000]
     assert 'width="288pt"' in head and 'height="216pt"' in head
 

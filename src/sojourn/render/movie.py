@@ -253,6 +253,10 @@ class MovieFrame:
                 axes.append(panel_ax)
             self.panels.append(panel)
         apply_look(fig, axes, look, font)
+        for panel in self.panels:   # side panels: smaller labels than the main one
+            panel.ax.xaxis.label.set_fontsize(0.7 * font)
+            panel.ax.yaxis.label.set_fontsize(0.6 * font)
+            panel.ax.tick_params(labelsize=0.6 * font)
         fit_inside(fig)              # lays the panels out once (drawn), then they stay put
         fig.set_layout_engine("none")
         self.background = self.canvas.copy_from_bbox(fig.bbox)
@@ -287,7 +291,10 @@ class MovieFrame:
             self.phase_image.set_data(rgba)
         if "reference" in self.curves:
             ref = mirror_reference(self.xs, t, f.packet, f.reference, f.hbar, f.mass)
-            self.reference_line.set_ydata(ref.real ** 2 + ref.imag ** 2)
+            ref = ref.real ** 2 + ref.imag ** 2
+            if self.power != 1:
+                ref = self.top * (ref / self.top) ** self.power
+            self.reference_line.set_ydata(ref)
         if "real" in self.curves:
             self.real_line.set_ydata(psi.real * self.amplitude)
         if "imag" in self.curves:
@@ -316,6 +323,9 @@ def render_movie(path, output, options: MovieOptions = MovieOptions(),
                           "needs an even width and height")
     get_look(options.style)
     parse_curves(",".join(options.curves))
+    if not (math.isfinite(options.density_power) and 0.05 <= options.density_power <= 1):
+        raise RenderError(f"--density-power {options.density_power:g}: choose 0.05 to 1 (1: the "
+                          "true density)")
     with open_run(path) as run:
         facts = run_facts(run)
         if options.seconds is not None:

@@ -44,7 +44,7 @@ class ChannelZoom:
         what = "the mirror's packet" if reflected else "the free transmitted packet"
         ax.set_title(f"zoom: following {what}" + ("  (untrusted)" if untrusted else ""),
                      fontsize=0.7 * font, loc="left", color=look.text, family=look.family)
-        ax.set_ylabel("|ψ|² / reference peak", fontsize=0.7 * font)
+        ax.set_ylabel("|ψ|² / ref. peak", fontsize=0.6 * font)
         ax.grid(True, color=look.grid, linewidth=max(lw / 4, 0.5), alpha=0.6)
         zeros = np.zeros_like(zx)
         self.ref_line, = ax.plot(zx, zeros, color=look.reference, linewidth=0.8 * lw,
@@ -56,7 +56,8 @@ class ChannelZoom:
         self.ruler_line, = ax.plot([0, gap], [0.15, 0.15], color=look.measurement,
                                    linewidth=1.2 * lw, marker="|", markersize=3 * lw + 8,
                                    markeredgewidth=lw, animated=True,
-                                   gid=f"delay-ruler-{channel}")
+                                   gid="delay-ruler" if reflected else
+                                   "delay-ruler-transmitted")
         ax.text(0.5, 0.19, ruler.label(u["time"], "\n"), transform=ax.transAxes, ha="center",
                 va="bottom", color=look.measurement, fontsize=0.75 * font)
         self.artists = [self.ref_line, self.real_line, *self.marks, self.ruler_line]
@@ -121,7 +122,7 @@ class TrueWidth:
                         step="mid")
         ax.step(x[keep], V, where="mid", color=look.potential, linewidth=lw, gid="true-width-V")
         ax.axhline(e0, color=look.energy, linewidth=0.6 * lw, linestyle=(0, (4, 2)))
-        ax.set_title("the potential at true width", fontsize=0.7 * font, loc="left",
+        ax.set_title("the potential at true width (as the grid holds it)", fontsize=0.7 * font, loc="left",
                      color=look.text, family=look.family)
         ax.set_xlabel(f"x ({u['length']})", fontsize=0.75 * font)
         ax.set_ylabel(f"V ({u['energy']})", fontsize=0.7 * font)
