@@ -129,7 +129,7 @@ def thin_span(x: np.ndarray, V, window: tuple[float, float], share: float = THIN
               ) -> Optional[tuple[float, float]]:
     """The x-range to draw the potential's features at true width, when they
     (where V lies above both its far levels or below both) span less than `share` of
-    `window`: the features with three times their span either side. None
+    `window`: the features with 1.5 times their span either side. None
     when they are wide enough to see (or there are none)."""
     if V is None:
         return None
@@ -148,4 +148,4 @@ def thin_span(x: np.ndarray, V, window: tuple[float, float], share: float = THIN
     lo, hi = float(x[feature[0]]) - dx, float(x[feature[-1]]) + dx
     if hi - lo >= share * (window[1] - window[0]):
         return None
-    return lo - 3 * (hi - lo), hi + 3 * (hi - lo)
+    return lo - 1.5 * (hi - lo), hi + 1.5 * (hi - lo)
