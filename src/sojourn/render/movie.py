@@ -204,7 +204,8 @@ class MovieFrame:
         if "density" in curves or "phase" in curves:
             self.fills, self.density_lines = [], []
             for mask, colour, label, channel in (
-                    (~self.far, look.reflected, "|ψ|² incident side", "reflection"),
+                    (~self.far, look.reflected, "|ψ|² incident side" if facts.scattering
+                     else "|ψ|²", "reflection"),
                     (self.far, look.transmitted, "|ψ|² far side" + (
                         f" ×{self.gain:.0e}".replace("e+0", "e") if self.gain > 1 else ""),
                      "transmission")):
