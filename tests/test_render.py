@@ -133,7 +133,7 @@ def test_a_run_larger_than_the_memory_budget_streams(tmp_path):
 
 def test_figures_in_each_format_have_the_requested_size(run, tmp_path):
     png, pdf, svg = tmp_path / "f.png", tmp_path / "f.pdf", tmp_path / "f.svg"
-    assert cli.main(["render", str(run), "--figure", str(png), "--size", "4x3", "--dpi",
+    assert cli.main(["render", str(run), "--figure", str(png), "--size", "4x3in", "--dpi",
                      "100"]) == 0
     assert iio.imread(png).shape[:2] == (300, 400)
     assert cli.main(["render", str(run), "--figure", str(png), "--size", "800x500px",
@@ -141,11 +141,11 @@ def test_figures_in_each_format_have_the_requested_size(run, tmp_path):
     assert iio.imread(png).shape[:2] == (500, 800)
     movie = tmp_path / "m.gif"   # with a movie too, --size is the movie's, --figure-size the figure's
     assert cli.main(["render", str(run), "-o", str(movie), "--size", "96x64", "--figure", str(pdf),
-                     "--figure-size", "4x3", "-q"]) == 0
+                     "--figure-size", "4x3in", "-q"]) == 0
     assert iio.imread(movie, index=0).shape[:2] == (64, 96)
     box = re.search(rb"/MediaBox\s*\[\s*0 0 ([\d.]+) ([\d.]+)\s*\]", pdf.read_bytes())
     assert box and (float(box[1]), float(box[2])) == (288.0, 216.0)   # 72 pt per inch
-    assert cli.main(["render", str(run), "--figure", str(svg), "--size", "4x3"]) == 0
+    assert cli.main(["render", str(run), "--figure", str(svg), "--size", "4x3in"]) == 0
     head = svg.read_text()[:2000]
     assert 'width="288pt"' in head and 'height="216pt"' in head
 
@@ -190,7 +190,7 @@ def test_delay_panel_shows_the_step_phase_delay(run, tmp_path):
     energy, tau = (np.asarray(a, float) for a in curve.get_data())
     np.testing.assert_allclose(tau, 1 / np.sqrt(energy * (1 - energy)), rtol=1e-6)
     png = tmp_path / "panel.png"
-    assert cli.main(["render", str(copy), "--figure", str(png), "--size", "8x3", "--dpi",
+    assert cli.main(["render", str(copy), "--figure", str(png), "--size", "8x3in", "--dpi",
                      "50"]) == 0
     assert iio.imread(png).shape[:2] == (150, 400)
 
@@ -250,7 +250,9 @@ def test_energy_spectrum_is_a_probability_density():
 
 def test_parse_size():
     assert render.parse_size("1280x720") == (1280, 720)
-    assert render.parse_size("7x4.5", "in") == (7.0, 4.5)
+    assert render.parse_size("7x4.5in", "in") == (7.0, 4.5)
+    # a bare WxH is pixels for figures too (it meant inches before the one convention)
+    assert render.figure_size(render.parse_size("600x300", "in"), 300) == (2.0, 1.0)
     assert render.figure_size(render.parse_size("600x300px", "in"), 300) == (2.0, 1.0)
 
 
@@ -297,9 +299,11 @@ def test_a_missing_output_folder_is_created_and_said(run, tmp_path, capsys):
 
 
 def test_figure_size_in_inches_that_cannot_be_exits_2(run, tmp_path, capsys):
+    # a bare 1920x1080 is pixels now (valid); inches too small to hold a figure are refused
     assert cli.main(["render", str(run), "--figure", str(tmp_path / "f.png"), "--size",
-                     "1920x1080"]) == 2
+                     "0.5x0.4in"]) == 2
     assert "inches" in capsys.readouterr().err
+    assert not (tmp_path / "f.png").exists()
 
 
 def test_no_output_and_missing_run_exit_2(run, tmp_path, capsys):

@@ -285,7 +285,8 @@ def cmd_render(args) -> int:
             {"size": render.parse_size(figure_size, "in")} if figure_size else {}), **(
             {"dpi": args.dpi} if args.dpi else {}))
     if args.output:
-        movie = render.MovieOptions(fps=args.fps, seconds=args.seconds, **common, **(
+        movie = render.MovieOptions(fps=args.fps, seconds=args.seconds,
+                                    density_power=args.density_power, **common, **(
             {"size": render.parse_size(args.size, "px")} if args.size else {}), **(
             {"curves": render.parse_curves(args.curves)} if args.curves else {}))
         update, close = _frame_bar(args.quiet)
@@ -307,9 +308,8 @@ def add_render(sub) -> None:
     p.add_argument("--size", help="movie WxH in pixels (default 1920x1080) or inches "
                                   "(7x4.5in); with --figure alone, the figure's size "
                                   "(as --figure-size)")
-    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in inches (7x4.5 or "
-                                                        "7x4.5in), or in pixels with 'px' "
-                                                        "(1920x1080px)")
+    p.add_argument("--figure-size", metavar="WxH", help="figure WxH in pixels (2100x1350, "
+                                                        "made at --dpi) or inches (7x4.5in)")
     p.add_argument("--fps", type=float, default=30.0, help="movie frames per second (default 30)")
     p.add_argument("--seconds", type=float, help="movie length in seconds (default: one frame per "
                                                  "snapshot); states between snapshots are "
@@ -320,6 +320,9 @@ def add_render(sub) -> None:
                                                  "the probability goes and the potential)")
     p.add_argument("--curves", help="movie curves, comma-separated from density, real, imag, "
                                     "phase, reference, potential (default density,reference,potential)")
+    p.add_argument("--density-power", type=float, default=1.0, metavar="P",
+                   help="movie: draw (|ψ|²)^P on the density's scale so a weak scattered wave "
+                        "shows (0.05 to 1; default 1, the true density; 0.5 is a good lift)")
     p.add_argument("--log", action="store_true", help="figure: logarithmic colour scale")
     p.add_argument("--dpi", type=float, help="figure resolution for PNG (default 300)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")

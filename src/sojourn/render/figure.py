@@ -25,6 +25,7 @@ from .options import FIGURE_FORMATS, PRINT_DPI, check_output, figure_size, unit_
 from .delays import delay_panels
 from .overlays import (action_window, direction, incident_bounds, reference_trajectory,
                        side_centroid, turning_time)
+from .channels import transmission_ruler, transmitted_reference, untrusted_channels
 from .scan import Ruler, Scan, channel_gain, reflection_ruler, scan_run
 from .styles import Look, apply_look, fit_inside, look as get_look
 
@@ -105,32 +106,32 @@ def outgoing_trajectory(st: SpaceTime, facts: RunFacts) -> np.ndarray:
     return np.where(enough, centroid, np.nan)
 
 
-def _zoom_panel(ax, st: SpaceTime, scan: Scan, facts: RunFacts, ruler: Ruler, look: Look,
-                font: float, lw: float, unit: str) -> None:
-    """The trajectories magnified where the reflected packet has left: the
-    mirror's and the measured centroid, five delays tall, with the ruler — the
-    time the real packet reaches a place after the mirror's packet did."""
-    info = facts.packet
-    used = np.nonzero(scan.usable)[0]
-    t_c = float(st.times[used[len(used) // 2]] if len(used) else st.times[-1])
-    x0 = float(reference_trajectory(t_c, info, facts.reference))
+def _zoom_panel(ax, times, measured: np.ndarray, reference, t_c: float, facts: RunFacts,
+                ruler: Ruler, colour: str, look: Look, font: float, lw: float, unit: str,
+                what: str) -> None:
+    """The trajectories magnified where the outgoing packet has left: the
+    reference's (`reference(t)`) and the measured centroid, five delays tall,
+    with the ruler — the time the real packet reaches a place after the
+    reference packet did."""
+    x0 = float(reference(t_c))
     tau = ruler.delay
-    half = max(2.5 * abs(tau), 1e-3 * float(np.ptp(st.times)) or 1.0)
+    half = max(2.5 * abs(tau), 1e-3 * float(np.ptp(times)) or 1.0)
     t_lo, t_hi = t_c + tau / 2 - half, t_c + tau / 2 + half
-    speed = abs(info.group_velocity)
+    ends = reference(np.array([t_c - half, t_c + half]))
+    speed = abs(float(ends[1] - ends[0])) / (2 * half) or abs(facts.packet.group_velocity)
     t_fine = np.linspace(t_lo - half, t_hi + half, 200)
-    ax.plot(reference_trajectory(t_fine, info, facts.reference), t_fine, color=look.reference,
-            linewidth=lw, linestyle=(0, (4, 2)))
-    ax.plot(outgoing_trajectory(st, facts), st.times, color=look.measurement, linewidth=lw,
-            marker="o", markersize=lw + 2)
+    ax.plot(reference(t_fine), t_fine, color=look.reference, linewidth=lw,
+            linestyle=(0, (4, 2)))
+    ax.plot(measured, times, color=colour, linewidth=lw, marker="o", markersize=lw + 2)
     ax.plot([x0, x0], [t_c, t_c + tau], color=look.measurement, linewidth=1.6 * lw,
-            marker="_", markersize=4 * lw + 6, markeredgewidth=lw, gid="delay-ruler")
-    ax.text(0.96, 0.04, ruler.label(unit), transform=ax.transAxes, ha="right", va="bottom",
-            color=look.measurement, fontsize=0.7 * font)
+            marker="_", markersize=4 * lw + 6, markeredgewidth=lw, gid="delay-ruler" if what == "reflected" else
+            "delay-ruler-transmitted")
+    ax.text(0.96, 0.04, ruler.label(unit, "\n"), transform=ax.transAxes, ha="right",
+            va="bottom", color=look.measurement, fontsize=0.7 * font)
     ax.set_xlim(x0 - speed * half * 1.2, x0 + speed * half * 1.2)
     ax.set_ylim(t_lo, t_hi)
     ax.set_xlabel(f"x ({unit_label(facts.units['length'])})")
-    ax.set_title("zoom on the delay", fontsize=0.75 * font, loc="left")
+    ax.set_title(f"zoom on the {what} delay", fontsize=0.75 * font, loc="left")
 
 
 def _far_gain(st: SpaceTime, scan: Scan, facts: RunFacts) -> tuple[float, np.ndarray]:
@@ -158,8 +159,10 @@ def figure(path, options: FigureOptions = FigureOptions()):
             facts.V if facts.scattering else None, facts.inner, facts.packet.width))
         st = space_time(run, facts, span)
     ruler = reflection_ruler(scan, facts) if facts.scattering else None
+    ruler_t = transmission_ruler(scan, facts) if facts.scattering else None
+    doubt = untrusted_channels(facts.analysis)
     analysed = bool(channels(facts.analysis))
-    ratios = [1.5] + ([0.75] if ruler else []) + ([1.25] if analysed else [])
+    ratios = [1.5] + [0.75] * (bool(ruler) + bool(ruler_t)) + ([1.25] if analysed else [])
     size = figure_size(options.size, options.dpi) if options.size else \
         (2.9 * sum(ratios) + 0.6, 4.6)
     # type and lines scale with the page (a 7-inch-wide page of panels is the norm)
@@ -196,11 +199,18 @@ def figure(path, options: FigureOptions = FigureOptions()):
         ax.plot(reference_trajectory(t_fine, facts.packet, facts.reference), t_fine,
                 color=look.reference, linewidth=lw, linestyle=(0, (4, 2)), label="ideal mirror",
                 gid="mirror-trajectory")
-        ax.plot(outgoing_trajectory(st, facts), st.times, color=look.measurement, linewidth=lw,
-                label="measured reflected centroid", gid="outgoing-centroid")
+        bad = "reflection" in doubt
+        ax.plot(outgoing_trajectory(st, facts), st.times, color=look.untrusted if bad else
+                look.measurement, linewidth=lw, gid="outgoing-centroid",
+                label="measured reflected centroid" + (" (untrusted)" if bad else ""))
         if scan.has_transmission:
-            ax.plot(transmitted_trajectory(scan, facts), scan.times, color=look.transmitted,
-                    linewidth=lw, label="measured transmitted centroid",
+            ax.plot(transmitted_reference(t_fine, facts), t_fine, color=look.reference,
+                    linewidth=0.7 * lw, linestyle=(0, (1.5, 1.5)),
+                    label="free transmitted packet", gid="transmitted-reference")
+            ax.plot(transmitted_trajectory(scan, facts), scan.times, color=look.untrusted if
+                    "transmission" in doubt else look.transmitted, linewidth=lw,
+                    label="measured transmitted centroid" + (
+                        " (untrusted)" if "transmission" in doubt else ""),
                     gid="transmitted-centroid")
         ax.axvline(facts.reference, color=look.reference, linewidth=0.5 * lw, linestyle=":")
         if gain > 1:
@@ -220,9 +230,23 @@ def figure(path, options: FigureOptions = FigureOptions()):
     legend.get_frame().set_linewidth(0)
     axes = [ax]
     column = 0
-    if ruler:
+    used = np.nonzero(scan.usable)[0]
+    t_c = float(st.times[used[len(used) // 2]] if len(used) else st.times[-1])
+    info = facts.packet
+    for rule, what in ((ruler, "reflected"), (ruler_t, "transmitted")):
+        if not rule:
+            continue
         zoom = fig.add_subplot(cells[column])
-        _zoom_panel(zoom, st, scan, facts, ruler, look, font, lw, u["time"])
+        if what == "reflected":
+            measured = outgoing_trajectory(st, facts)
+            reference = lambda t: reference_trajectory(t, info, facts.reference)  # noqa: E731
+        else:
+            measured = transmitted_trajectory(scan, facts)
+            reference = lambda t: transmitted_reference(t, facts)  # noqa: E731
+        colour = look.untrusted if ("reflection" if what == "reflected" else "transmission") \
+            in doubt else (look.measurement if what == "reflected" else look.transmitted)
+        _zoom_panel(zoom, st.times, measured, reference, t_c, facts, rule, colour, look, font,
+                    lw, u["time"], what)
         axes.append(zoom)
         column += 1
     if analysed:

@@ -28,8 +28,9 @@ from ..store import RunFile
 from .facts import RunFacts, open_run, run_facts, time_format, window
 from .frames import frame_times, propagated_states
 from .options import DEFAULT_CURVES, MOVIE_FORMATS, check_output, parse_curves, unit_label
-from .overlays import (action_window, direction, incident_bounds, mirror_reference,
-                       reference_trajectory, side_centroid, turning_time)
+from .overlays import action_window, direction, mirror_reference
+from .channels import thin_span, transmission_ruler, untrusted_channels
+from .panels import ChannelZoom, TrueWidth
 from .scan import Scan, channel_gain, reflection_ruler, scan_run
 from .styles import apply_look, fit_inside, look as get_look
 
@@ -46,7 +47,9 @@ class MovieOptions:
     quality: int = 18      # H.264 constant rate factor (lower is better; 18 looks lossless)
     preset: str = "veryfast"   # x264 speed preset: the encoder, not drawing, sets the pace
     seconds: Optional[float] = None   # movie length; None: one frame per snapshot
-    ruler: bool = True     # the delay ruler and its zoom panel (scattering runs)
+    ruler: bool = True     # the delay rulers and their zoom panels (scattering runs)
+    density_power: float = 1.0   # draw (|ψ|²)^p on the density's scale: 1 is the true density;
+    #                             0.3–0.5 lifts a weak scattered wave into view
 
 
 def open_encoder(path: Path, size: tuple[int, int], fps: float, quality: int = 18,
@@ -103,14 +106,21 @@ class MovieFrame:
         self.xs = x[self.index]
         u = {k: unit_label(v) for k, v in facts.units.items() if isinstance(v, str)}
         self.time_unit = u["time"]
-        self.ruler = reflection_ruler(scan, facts) if facts.scattering and options.ruler else None
+        scatters = facts.scattering and options.ruler
+        self.ruler = reflection_ruler(scan, facts) if scatters else None
+        self.ruler_t = transmission_ruler(scan, facts) if scatters else None
+        self.untrusted = untrusted_channels(facts.analysis)
+        thin = thin_span(x, facts.V, (lo, hi)) if facts.scattering and "potential" in curves \
+            else None
+        side = [kind for kind, on in (("reflection", self.ruler), ("transmission", self.ruler_t),
+                                      ("thin", thin)) if on]
         fig = self.fig = Figure(figsize=(width / 100, height / 100), dpi=100,
                                 layout="constrained")
         fig.get_layout_engine().set(w_pad=0.02 * height / 100, h_pad=0.02 * height / 100)
         self.canvas = FigureCanvasAgg(fig)
-        grid = fig.add_gridspec(1, 2 if self.ruler else 1, width_ratios=[2.6, 1][:1 + bool(
-            self.ruler)])
-        ax = self.ax = fig.add_subplot(grid[0, 0])
+        grid = fig.add_gridspec(max(len(side), 1), 2 if side else 1,
+                                width_ratios=[2.6, 1][:1 + bool(side)])
+        ax = self.ax = fig.add_subplot(grid[:, 0])
         axes = [ax]
         wave = {"real", "imag"} & curves
         inside = (x >= lo) & (x <= hi)
@@ -122,6 +132,10 @@ class MovieFrame:
         far = direction(facts.packet) * (self.xs - facts.far_edge) > 0
         self.far = far if facts.scattering else np.zeros_like(far)
         self.gain = channel_gain(scan) if facts.scattering else 1.0
+        self.power = float(options.density_power)
+        if not (math.isfinite(self.power) and 0.05 <= self.power <= 1):
+            raise RenderError(f"--density-power {self.power:g}: choose 0.05 to 1 (1: the true "
+                              "density)")
         e_lo = e_hi = 0.0
         if "potential" in curves:
             V = facts.V[keep]
@@ -135,7 +149,8 @@ class MovieFrame:
         ax.set_xlim(lo, hi)
         ax.set_ylim(bottom, top)
         ax.set_xlabel(f"x ({u['length']})")
-        ax.set_ylabel(f"|ψ|² (1/{u['length']})")
+        ax.set_ylabel(f"|ψ|² (1/{u['length']})" if self.power == 1 else
+                      f"|ψ|² on a power-{self.power:g} scale (1/{u['length']})")
         ax.grid(True, color=look.grid, linewidth=max(lw / 4, 0.5), alpha=0.6)
         self.moving = []
         ax2 = None
@@ -188,19 +203,25 @@ class MovieFrame:
                 handles.append(line)
         if "density" in curves or "phase" in curves:
             self.fills, self.density_lines = [], []
-            for mask, colour, label in ((~self.far, look.reflected, "|ψ|² incident side"),
-                                        (self.far, look.transmitted, "|ψ|² far side" + (
-                                            f" ×{self.gain:.0e}".replace("e+0", "e")
-                                            if self.gain > 1 else ""))):
+            for mask, colour, label, channel in (
+                    (~self.far, look.reflected, "|ψ|² incident side" if facts.scattering
+                     else "|ψ|²", "reflection"),
+                    (self.far, look.transmitted, "|ψ|² far side" + (
+                        f" ×{self.gain:.0e}".replace("e+0", "e") if self.gain > 1 else ""),
+                     "transmission")):
                 xs = np.where(mask, self.xs, np.nan)
                 verts = np.zeros((len(xs) + 2, 2))
                 verts[1:-1, 0] = self.xs
                 verts[0, 0], verts[-1, 0] = self.xs[0], self.xs[-1]
-                fill = Polygon(verts, closed=True, facecolor=colour, alpha=0.3, linewidth=0,
-                               animated=True, visible="phase" not in curves)
+                doubt = channel in self.untrusted     # untrusted: hollow, hatched, dashed
+                fill = Polygon(verts, closed=True, facecolor="none" if doubt else colour,
+                               edgecolor=colour, hatch="//" if doubt else None,
+                               alpha=0.5 if doubt else 0.3, linewidth=0, animated=True,
+                               visible="phase" not in curves, gid=f"fill-{channel}")
                 ax.add_patch(fill)
                 line, = ax.plot(xs, zeros, color=colour, linewidth=lw, animated=True,
-                                label=label)
+                                linestyle=(0, (2, 1)) if doubt else "-",
+                                label=label + (" (untrusted)" if doubt else ""))
                 self.fills.append((fill, verts, mask))
                 self.density_lines.append(line)
                 if mask.any() and (colour == look.reflected or scan.has_transmission):
@@ -220,45 +241,32 @@ class MovieFrame:
         self.moving.append(self.time_text)
         self.time_format = time_format(facts.times)
         fig.suptitle(facts.title, color=look.text, fontsize=1.1 * font, family=look.family)
-        if self.ruler:
-            axes.append(self._zoom_panel(fig.add_subplot(grid[0, 1]), font, lw, u))
+        self.panels = []
+        for row, kind in enumerate(side):
+            panel_ax = fig.add_subplot(grid[row, 1])
+            if kind == "thin":
+                panel = TrueWidth(panel_ax, facts, look, thin, top, font, lw, u)
+                axes += [panel_ax, panel.twin]
+            else:
+                panel = ChannelZoom(panel_ax, facts, look, self.ruler if kind == "reflection"
+                                    else self.ruler_t, kind, font, lw, u,
+                                    untrusted=kind in self.untrusted)
+                axes.append(panel_ax)
+            self.panels.append(panel)
         apply_look(fig, axes, look, font)
+        for panel in self.panels:   # side panels: smaller labels than the main one
+            panel.ax.xaxis.label.set_fontsize(0.7 * font)
+            panel.ax.yaxis.label.set_fontsize(0.6 * font)
+            panel.ax.tick_params(labelsize=0.6 * font)
         fit_inside(fig)              # lays the panels out once (drawn), then they stay put
         fig.set_layout_engine("none")
         self.background = self.canvas.copy_from_bbox(fig.bbox)
 
-    def _zoom_panel(self, zoom, font: float, lw: float, u: dict):
-        """The panel that follows the mirror's packet, with the ruler."""
-        f, look, ruler = self.facts, self.look, self.ruler
-        gap = f.packet.group_velocity * ruler.delay          # x_out − x_ref, signed
-        half = max(3 * abs(gap), 0.05 * f.packet.width)
-        zx = self.zoom_x = np.linspace(gap / 2 - half, gap / 2 + half, 400)
-        zoom.set_xlim(zx[0], zx[-1])
-        zoom.set_ylim(0, 1.35)
-        zoom.set_xlabel(f"x − x_mirror(t) ({u['length']})")
-        zoom.set_title("zoom: following the mirror's packet", fontsize=0.75 * font, loc="left",
-                       color=look.text, family=look.family)
-        zoom.set_ylabel("|ψ|² / mirror's peak", fontsize=0.75 * font)
-        zoom.grid(True, color=look.grid, linewidth=max(lw / 4, 0.5), alpha=0.6)
-        zeros = np.zeros_like(zx)
-        self.zoom_ref, = zoom.plot(zx, zeros, color=look.reference, linewidth=0.8 * lw,
-                                   linestyle=(0, (3, 1.5)), animated=True)
-        self.zoom_real, = zoom.plot(zx, zeros, color=look.reflected, linewidth=lw, animated=True)
-        self.zoom_marks = [zoom.axvline(0, color=c, linewidth=0.6 * lw, animated=True)
-                           for c in (look.reference, look.measurement)]
-        y = 0.15
-        self.ruler_line, = zoom.plot([0, gap], [y, y], color=look.measurement,
-                                     linewidth=1.2 * lw, marker="|", markersize=3 * lw + 8,
-                                     markeredgewidth=lw, animated=True, gid="delay-ruler")
-        self.ruler_text = zoom.text(0.5, 0.19, ruler.label(self.time_unit, "\n"), transform=zoom.transAxes,
-                                    ha="center", va="bottom", color=look.measurement,
-                                    fontsize=0.8 * font)
-        self.zoom = zoom
-        self.zoom_artists = [self.zoom_ref, self.zoom_real, *self.zoom_marks, self.ruler_line]
-        info = f.packet
-        self.clear_time = turning_time(info, f.reference) + 2 * info.width / abs(
-            info.group_velocity)
-        return zoom
+    @property
+    def ruler_line(self):
+        """The reflected channel's ruler (a Line2D in the first zoom panel)."""
+        return next(p.ruler_line for p in self.panels if getattr(p, "channel", "") ==
+                    "reflection")
 
     def draw(self, t: float, psi: np.ndarray) -> np.ndarray:
         """Update the moving artists for (t, ψ) and return the frame, H×W×4 RGBA
@@ -269,6 +277,8 @@ class MovieFrame:
         density = psi.real ** 2 + psi.imag ** 2
         if hasattr(self, "density_lines"):
             shown = np.where(self.far, density * self.gain, density)
+            if self.power != 1:
+                shown = self.top * (np.maximum(shown, 0) / self.top) ** self.power
             for line in self.density_lines:
                 line.set_ydata(shown)
             for fill, verts, mask in self.fills:
@@ -278,11 +288,14 @@ class MovieFrame:
         if "phase" in self.curves:
             hue = ((np.angle(psi) + math.pi) / (2 * math.pi) * 255).astype(np.intp) % 256
             rgba = self.phase_lut[hue][None, :, :].repeat(self.phase_rows, axis=0)
-            rgba[..., 3] = np.where(self.phase_heights[:, None] < density[None, :], 230, 0)
+            rgba[..., 3] = np.where(self.phase_heights[:, None] < shown[None, :], 230, 0)
             self.phase_image.set_data(rgba)
         if "reference" in self.curves:
             ref = mirror_reference(self.xs, t, f.packet, f.reference, f.hbar, f.mass)
-            self.reference_line.set_ydata(ref.real ** 2 + ref.imag ** 2)
+            ref = ref.real ** 2 + ref.imag ** 2
+            if self.power != 1:
+                ref = self.top * (ref / self.top) ** self.power
+            self.reference_line.set_ydata(ref)
         if "real" in self.curves:
             self.real_line.set_ydata(psi.real * self.amplitude)
         if "imag" in self.curves:
@@ -292,32 +305,9 @@ class MovieFrame:
         for artist in self.moving:
             if artist.get_visible():
                 self.ax.draw_artist(artist)
-        if self.ruler:
-            self._draw_zoom(t, full)
+        for panel in self.panels:
+            panel.update(t, full)
         return np.asarray(self.canvas.buffer_rgba())
-
-    def _draw_zoom(self, t: float, psi: np.ndarray) -> None:
-        f = self.facts
-        x_ref = float(reference_trajectory(t, f.packet, f.reference))
-        after = t >= self.clear_time
-        density = psi.real ** 2 + psi.imag ** 2
-        xs = x_ref + self.zoom_x
-        ref = mirror_reference(xs, t, f.packet, f.reference, f.hbar, f.mass)
-        ref = ref.real ** 2 + ref.imag ** 2
-        scale = 1 / max(float(ref.max()), 1e-300)
-        self.zoom_real.set_ydata(np.interp(xs, f.x, density) * scale)
-        self.zoom_ref.set_ydata(ref * scale)
-        _, centre = side_centroid(f.x, density, float(f.x[1] - f.x[0]),
-                                  incident_bounds(f.inner, f.reference, f.packet))
-        offset = centre - x_ref
-        self.zoom_marks[1].set_xdata([offset, offset])
-        self.ruler_line.set_xdata([0.0, offset])
-        for artist in (self.zoom_marks[1], self.ruler_line):
-            artist.set_visible(after and math.isfinite(offset))
-        for artist in self.zoom_artists:
-            if artist.get_visible():
-                self.zoom.draw_artist(artist)
-
 
 def render_movie(path, output, options: MovieOptions = MovieOptions(),
                  progress: Optional[Callable[[int, int], None]] = None) -> Path:
@@ -334,6 +324,9 @@ def render_movie(path, output, options: MovieOptions = MovieOptions(),
                           "needs an even width and height")
     get_look(options.style)
     parse_curves(",".join(options.curves))
+    if not (math.isfinite(options.density_power) and 0.05 <= options.density_power <= 1):
+        raise RenderError(f"--density-power {options.density_power:g}: choose 0.05 to 1 (1: the "
+                          "true density)")
     with open_run(path) as run:
         facts = run_facts(run)
         if options.seconds is not None:

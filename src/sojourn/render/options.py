@@ -1,8 +1,9 @@
 """Parsing and checking render options: sizes, x-ranges, curve lists, outputs.
 
 One size convention for movies and figures: `WxH` in pixels (`1920x1080` or
-`1920x1080px`) or in inches (`7x4.5in`). A figure given in pixels is made at
-its dpi; a movie is whole pixels, so inches are converted at `MOVIE_DPI`.
+`1920x1080px`; a bare WxH is always pixels) or in inches (`7x4.5in`). A figure
+given in pixels is made at its dpi (so the PNG has exactly those pixels); a
+movie is whole pixels, so inches are converted at `MOVIE_DPI`.
 """
 from __future__ import annotations
 
@@ -31,10 +32,10 @@ def _size_error(text: str) -> RenderError:
 
 
 def parse_size(text: str, unit: str = "px") -> tuple[float, float]:
-    """'WxH[px|in]' → (W, H).
+    """'WxH[px|in]' → (W, H); a bare 'WxH' is pixels.
 
-    unit is what a bare 'WxH' means: 'px' for movies (returns whole pixels;
-    'in' converted at MOVIE_DPI), 'in' for figures (returns inches; 'px'
+    unit is what the caller needs back: 'px' for movies (whole pixels; inches
+    converted at MOVIE_DPI), 'in' for figures (inches as given; pixels
     returned as negative numbers for `figure_size` to convert at the dpi)."""
     match = _SIZE.match(str(text).lower())
     if not match:
@@ -43,7 +44,7 @@ def parse_size(text: str, unit: str = "px") -> tuple[float, float]:
         w, h = float(match[1]), float(match[2])
     except ValueError:
         raise _size_error(text) from None
-    given = match[3] or unit
+    given = match[3] or "px"
     if not (math.isfinite(w) and math.isfinite(h)) or w <= 0 or h <= 0:
         raise RenderError(f"--size {text!r}: width and height must be positive")
     if given == "in":

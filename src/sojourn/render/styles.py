@@ -17,6 +17,10 @@ Re ψ, Im ψ          #2f5fb3 blue,  #7aa6ff,       thin lines (scaled to the de
                     #7d8a2e olive  #c5d86d
 ==================  =============  =============  ==================================
 
+The three delay methods, where a figure sets them side by side (the sweep
+summary): centroid #c8401e red (circle), arrival #2f5fb3 blue (square),
+spectral #5d7a1e olive (diamond); each method's prediction in its colour.
+
 Maps: cividis (paper), bone (talk); phase as hue: twilight, with its key.
 Type: DejaVu Sans (ships with matplotlib, so every machine draws the same
 glyphs), scaled with the canvas. Styles:
@@ -70,6 +74,9 @@ TALK = Look(background="#15181f", text="#ecebe6", grid="#2f3441", density="#9fb7
             energy="#d38bc4", untrusted="#6c707a", font=26, line=4.0, cmap="bone",
             trajectory="#ff6f4f")
 TALK_LIGHT = Look(**{**PAPER.__dict__, "font": 26, "line": 4.0})
+
+METHOD_COLOURS = {"centroid": "#c8401e", "arrival": "#2f5fb3", "spectral": "#5d7a1e"}
+METHOD_MARKERS = {"centroid": "o", "arrival": "s", "spectral": "D"}
 
 LOOKS = {"talk-dark": TALK, "talk-light": TALK_LIGHT, "paper": PAPER, "talk": TALK}
 STYLES = ("talk-dark", "talk-light", "paper", "talk")

@@ -23,6 +23,8 @@ import numpy as np
 from ..config.sweepfile import Sweep
 from ..errors import SojournError
 from ..theory import scatter
+from ..render.options import unit_label
+from ..render.styles import METHOD_COLOURS, METHOD_MARKERS, PAPER, apply_look, fit_inside
 
 # The delay methods, in table order. Switch to the measure registry's names
 # (`tuple(sojourn.measure.METHODS)`) once it exists: this is the only list.
@@ -174,34 +176,63 @@ def plot_summary(sweep: Sweep, rows: list, path: Path) -> None:
     """Draw `summary_figure` into `path` (marked as written by a sweep)."""
     fig = summary_figure(sweep, rows)
     FigureCanvasAgg(fig)
-    fig.savefig(path, dpi=130, metadata={"Software": PNG_MARK})
+    fig.savefig(path, dpi=SUMMARY_DPI, metadata={"Software": PNG_MARK},
+                facecolor=fig.get_facecolor())
+
+
+SUMMARY_DPI = 200          # 9.6 inches wide: 1920 pixels, type 11 pt ≈ 30 px tall
+# words and the unit kind of a varied key's last part ("packet.energy" → packet energy (eV))
+KEY_WORDS = {"energy": ("energy", "energy"), "height": ("height", "energy"),
+             "depth": ("depth", "energy"), "width": ("width", "length"),
+             "center": ("start position", "length"), "start": ("start", "length"),
+             "end": ("end", "length"), "at": ("position", "length"),
+             "duration": ("duration", "time"), "dt": ("time step", "time"),
+             "points": ("grid points", None), "mass": ("mass", "mass"),
+             "wavenumber": ("wavenumber", None)}
+
+
+def key_label(key: str, units: dict) -> str:
+    """A varied key in words with its unit: 'packet.energy' → 'packet energy (eV)';
+    'potential.0.barrier.height' → 'barrier height (eV)'."""
+    parts = [p for p in key.split(".") if not p.isdigit()]
+    words, kind = KEY_WORDS.get(parts[-1], (parts[-1].replace("_", " "), None))
+    owner = parts[-2] if len(parts) > 1 and parts[-2] not in ("evolve", "grid") else ""
+    owner = owner.replace("_", " ")
+    text = f"{owner} {words}".strip()
+    unit = units.get(kind) if kind else None
+    return f"{text} ({unit_label(unit)})" if isinstance(unit, str) else text
 
 
 def summary_figure(sweep: Sweep, rows: list):
-    """Measured delays against the first varied key, one panel per channel, with
-    theory: for a varied packet energy the phase delay τ(E) over the same range
-    and each point's packet-averaged predictions; otherwise the predictions
-    joined by a line. Other varied keys make one series per combination.
+    """Measured delays against the first varied key, one panel per channel, in
+    sojourn's paper look, 1920 pixels wide: for a varied packet energy the
+    phase delay τ(E) over the same range and each point's packet-averaged
+    predictions; otherwise the predictions joined by a line. Each method has
+    its colour and marker (styles.METHOD_COLOURS), its predictions drawn in
+    the same colour. Other varied keys make one series per combination.
     Trusted points are filled; points with warnings are hollow."""
     key = sweep.keys[0]
     u = sweep.units
+    look = PAPER
+    font, lw = 11.0, 1.5
     channels = [c for c in CHANNELS if rows and f"{c}_delay_wigner" in rows[0]]
-    fig = Figure(figsize=(7.5, 4.2 * max(len(channels), 1)), layout="constrained")
+    fig = Figure(figsize=(9.6, 4.6 * max(len(channels), 1)), layout="constrained")
+    FigureCanvasAgg(fig)
     axes = fig.subplots(len(channels) or 1, 1, squeeze=False)
     # zip ties the other keys to the first: one series; a product: one per combination
     others = sweep.keys[1:] if sweep.pairing == "product" else ()
     groups: dict = {}
     for row, point in zip(rows, sweep.points):
-        label = ", ".join(f"{k} = {_label(row[k])}" for k in others)
+        label = ", ".join(f"{key_label(k, u)} = {_label(row[k])}" for k in others)
         groups.setdefault(label, []).append((row, point))
-    markers = {m: "os^Dvp"[i % 6] for i, m in enumerate(METHODS)}
-    colours = {m: f"C{i}" for i, m in enumerate(METHODS)}
+    markers = {m: METHOD_MARKERS.get(m, "^") for m in METHODS}
+    colours = {m: METHOD_COLOURS.get(m, look.text) for m in METHODS}
     energy_sweep = key == "packet.energy"
     untrusted_shown = False
     for ax, channel in zip(axes[:, 0], channels or [None]):
         if channel is None:
             ax.text(0.5, 0.5, "no complete points", ha="center", va="center",
-                    transform=ax.transAxes)
+                    transform=ax.transAxes, fontsize=font)
             break
         for g, (label, members) in enumerate(groups.items()):
             done = [(r, p) for r, p in members if r["status"] in DONE]
@@ -213,10 +244,10 @@ def summary_figure(sweep: Sweep, rows: list):
             if energy_sweep and len(done) > 1:
                 curve = _theory_curve(done[0][1].scenario, channel, x)
                 if curve is not None:
-                    ax.plot(*curve, color="k", lw=1.2, ls=style,
+                    ax.plot(*curve, color=look.theory, lw=lw, ls=style,
                             label="phase delay τ(E)" + (f" ({label})" if label else ""))
             elif label:
-                ax.plot([], [], color="k", ls=style, label=label)
+                ax.plot([], [], color=look.theory, ls=style, label=label)
             for method in METHODS:
                 y = np.array([_number(r.get(f"{channel}_delay_{method}")) for r, _ in done])
                 pred = np.array([_number(r.get(f"{channel}_predicted_{method}")) for r, _ in done])
@@ -229,24 +260,28 @@ def summary_figure(sweep: Sweep, rows: list):
                         continue
                     untrusted_shown |= not filled
                     ax.errorbar(x[pick], y[pick], yerr=err[pick] if np.isfinite(err).any() else None,
-                                fmt=markers[method], color=colours[method], ms=6, capsize=3,
+                                fmt=markers[method], color=colours[method], ms=7, capsize=3,
                                 ls="none", mfc=colours[method] if filled else "none",
                                 label=f"{method} (measured)" if first and filled else None)
                 if energy_sweep:   # each point's own packet average: a tick at the point
-                    ax.plot(x[order], pred[order], ls="none", marker="_", ms=16, mew=1.5,
+                    ax.plot(x[order], pred[order], ls="none", marker="_", ms=18, mew=2,
                             color=colours[method], label=f"{method} (packet theory)" if first
                             else None)
                 else:
-                    ax.plot(x[order], pred[order], ls=style, color=colours[method], lw=1,
+                    ax.plot(x[order], pred[order], ls=style, color=colours[method], lw=lw,
                             label=f"{method} (packet theory)" if first else None)
         if untrusted_shown:
-            ax.plot([], [], ls="none", marker="o", mfc="none", color="0.4",
+            ax.plot([], [], ls="none", marker="o", mfc="none", color=look.untrusted,
                     label="hollow: with warnings (see table.json)")
-        unit = u["energy"] if energy_sweep else ""
-        ax.set_xlabel(f"{key}" + (f" [{unit}]" if unit else ""))
-        ax.set_ylabel(f"{channel} delay [{u['time']}]")
-        ax.legend(fontsize=7, ncol=2)
-    fig.suptitle(f"{sweep.base.title}: sweep over {', '.join(sweep.keys)}", fontsize=10)
+        ax.set_xlabel(key_label(key, u))
+        ax.set_ylabel(f"{'reflected' if channel == 'reflection' else 'transmitted'} delay "
+                      f"({unit_label(u['time'])})")
+        ax.grid(True, color=look.grid, linewidth=0.6)
+        ax.legend(fontsize=0.8 * font, ncol=2, frameon=False)
+    fig.suptitle(f"{sweep.base.title}: measured delays against "
+                 f"{', '.join(key_label(k, u) for k in sweep.keys)}", fontsize=font)
+    apply_look(fig, list(axes[:, 0]), look, font)
+    fit_inside(fig)
     return fig
 
 

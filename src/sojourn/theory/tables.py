@@ -16,6 +16,8 @@ from .averages import packet_prediction
 from .larmor import larmor_times, packet_larmor
 from .layers import check_scattering
 from .scattering import scatter
+from ..render.options import unit_label
+from ..render.styles import PAPER, apply_look, fit_inside
 
 
 class TheoryInputs(NamedTuple):
@@ -224,45 +226,77 @@ def format_table(table: dict) -> str:
     return "\n".join(text) + "\n"
 
 
-def plot_theory(table: dict, path) -> None:
-    """R, T and the delays against energy, with the packet's spectrum shaded
-    (a Figure on its own Agg canvas: no pyplot state; matplotlib is loaded only
-    when a figure is asked for)."""
+def plot_theory(table: dict, path, dpi: float = 300.0):
+    """R, T and the phase delays against energy in sojourn's paper look (a
+    Figure on its own Agg canvas, no pyplot state): the packet's spectrum
+    shaded, E₀ marked, τ_R and τ_T each in its channel's colour where the
+    channel is open, the dwell time only where it is defined and not zero
+    (a step has no region to dwell in). Returns the Figure."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
     def arr(key):
         return np.array([np.nan if v is None else v for v in table[key]], dtype=float)
 
-    E = arr("energy")
-    u = table["units"]
-    fig = Figure(figsize=(7, 6), constrained_layout=True)
+    look, E, u = PAPER, arr("energy"), table["units"]
+    font, lw = 0.7 * look.font, 0.8 * look.line
+    fig = Figure(figsize=(7, 6), layout="constrained")
     FigureCanvasAgg(fig)
     ax1, ax2 = fig.subplots(2, 1, sharex=True)
-    ax1.plot(E, arr("R"), label="R")
-    ax1.plot(E, arr("T"), label="T")
-    ax1.set_ylabel("probability")
+    R, T = arr("R"), arr("T")
+    ax1.plot(E, R, color=look.reflected, linewidth=lw, label="reflection R", gid="R")
+    if np.nanmax(np.nan_to_num(T)) > 0:
+        ax1.plot(E, T, color=look.transmitted, linewidth=lw, label="transmission T", gid="T")
+    ax1.set_ylabel("probability", fontsize=font)
     ax1.set_ylim(-0.02, 1.02)
-    ax2.plot(E, arr("delay_reflection"), label=r"$\tau_R$")
-    ax2.plot(E, arr("delay_transmission"), label=r"$\tau_T$")
-    ax2.plot(E, arr("dwell"), label=r"$\tau_D$", linestyle="--")
+    # τ_R broad and pale beneath a thin τ_T: both stay visible where they coincide
+    # (a symmetric barrier has τ_R = τ_T with these reference points)
+    curves = [("delay_reflection", look.reflected, "τ_R (reflection)", "-", 3.2),
+              ("delay_transmission", look.transmitted, "τ_T (transmission)", "-", 1.0),
+              ("dwell", look.theory, "τ_D (dwell time)", (0, (4, 2)), 1.0)]
     if "tau_y_transmission" in table:       # a Larmor clock: its times beside the others
-        for key, label, style in (("tau_y_transmission", r"$\tau_y^T$", ":"),
-                                  ("tau_z_transmission", r"$\tau_z^T$", "-."),
-                                  ("tau_y_reflection", r"$\tau_y^R$", ":"),
-                                  ("tau_z_reflection", r"$\tau_z^R$", "-.")):
-            ax2.plot(E, arr(key), label=label, linestyle=style)
-    ax2.set_ylabel(f"delay [{u['time']}]")
-    ax2.set_xlabel(f"energy [{u['energy']}]")
+        curves += [("tau_y_transmission", look.transmitted, "τ_y (Larmor, transmission)", ":", 1.0),
+                   ("tau_z_transmission", look.transmitted, "τ_z (Larmor, transmission)", "-.", 1.0),
+                   ("tau_y_reflection", look.reflected, "τ_y (Larmor, reflection)", ":", 1.0),
+                   ("tau_z_reflection", look.reflected, "τ_z (Larmor, reflection)", "-.", 1.0)]
+    for key, colour, label, style, width in curves:
+        values = arr(key)
+        finite = np.isfinite(values)
+        if not finite.any() or (key == "dwell" and np.all(values[finite] == 0)):
+            continue
+        ax2.plot(E, values, color=colour, linewidth=width * lw, linestyle=style, label=label,
+                 gid=key, alpha=0.55 if width > 1 else 1.0)
+    ax2.set_ylabel(f"delay ({unit_label(u['time'])})", fontsize=font)
+    ax2.set_xlabel(f"energy E ({unit_label(u['energy'])})", fontsize=font)
     spec = table.get("packet_spectrum")
     if spec:
         se = np.array(spec["energy"], dtype=float)
         sw = np.array(spec["weight_dk"], dtype=float)
         for ax in (ax1, ax2):
-            lo, hi = ax.get_ylim() if ax is ax2 else (0, 1)
-            ax.fill_between(se, lo, lo + (hi - lo) * sw / sw.max(), color="0.85", zorder=0,
-                            label="packet |ψ̃(k)|²" if ax is ax1 else None)
-    ax1.legend()
-    ax2.legend()
-    ax1.set_title(table.get("scenario", ""))
-    fig.savefig(path, dpi=120)
+            shade = ax.twinx()
+            shade.fill_between(se, 0, sw / sw.max(), color=look.density, alpha=0.12,
+                               linewidth=0, label="packet spectrum" if ax is ax1 else None)
+            shade.set_ylim(0, 1.15)
+            shade.set_yticks([])
+            shade.set_zorder(ax.get_zorder() - 1)
+            ax.patch.set_visible(False)
+            shade.patch.set_visible(False)
+    e0 = (table.get("packet") or {}).get("energy0")
+    if isinstance(e0, (int, float)):
+        for ax in (ax1, ax2):
+            ax.axvline(e0, color=look.theory, linewidth=0.6 * lw, linestyle=":", gid="E0")
+        ax1.text(e0, 0.5, f" E₀ = {e0:.4g} {unit_label(u['energy'])}", color=look.theory,
+                 transform=ax1.get_xaxis_transform(), fontsize=0.75 * font, va="center")
+    if np.isfinite(E).any():
+        ax1.set_xlim(float(np.nanmin(E)), float(np.nanmax(E)))
+    ax1.legend(fontsize=0.75 * font, frameon=False, loc="center right")
+    ax2.legend(fontsize=0.75 * font, frameon=False, loc="best")
+    ax1.set_title("stationary scattering: how much is reflected and transmitted",
+                  fontsize=0.85 * font, loc="left")
+    ax2.set_title("and how long each channel is delayed (ħ dφ/dE)", fontsize=0.85 * font,
+                  loc="left")
+    fig.suptitle(table.get("scenario", ""), fontsize=font, color=look.text)
+    apply_look(fig, [ax1, ax2], look, font)
+    fit_inside(fig)
+    fig.savefig(path, dpi=dpi, facecolor=fig.get_facecolor())
+    return fig
