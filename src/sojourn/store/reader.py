@@ -4,7 +4,9 @@ RunReader's contract — what a storage backend provides (RunFile and
 store.memory.MemoryRun are the two):
 
 1. `attrs` — the root attributes of store.layout.ROOT_ATTRS as a dict (numbers
-   as numbers, JSON as text); `status` — running, interrupted, failed or complete.
+   as numbers; "mass" in electron masses, "mass_internal" in the units' energy·time²/
+   length²) and the layout.STRUCTURED entries (units, packet, provenance) as JSON
+   text; `status` — running, interrupted, failed or complete.
 2. `x`, `V` — the grid and potential as (N,) float arrays; `absorber` — (N,) or None.
 3. `len(reader)` — the committed snapshots; `times` — their (len,) times;
    `psi(i)` — snapshot i as an (N,) complex array (negative i counts from the end);
@@ -179,6 +181,7 @@ class RunFile(RunReader):
                                    "upgrade sojourn")
             if version < 1:
                 raise RunFileError(f"{self.path}: damaged run file (format version {version})")
+            self.version = version
             self.committed = layout.validate(self.h5, self.path, version)
         except (OSError, RuntimeError, KeyError, TypeError, ValueError) as exc:
             self.h5.close()
@@ -202,8 +205,17 @@ class RunFile(RunReader):
 
     @cached_property
     def attrs(self) -> dict:
-        return {key: (value.decode("utf-8", "replace") if isinstance(value, bytes) else value)
-                for key, value in self.h5.attrs.items()}
+        """The root attributes in the contract's form, whatever the format version:
+        STRUCTURED entries as JSON text, "mass" in electron masses, "mass_internal"."""
+        out = {key: (value.decode("utf-8", "replace") if isinstance(value, bytes) else value)
+               for key, value in self.h5.attrs.items()}
+        if self.version >= 3:
+            out.update({key: json.dumps(layout.read_structured(self.h5, key))
+                        for key in layout.STRUCTURED})
+        else:   # versions 1, 2 kept the internal mass under "mass"
+            out["mass_internal"] = out["mass"]
+            out["mass"] = float(out["mass"]) / float(json.loads(out["units"])["electron_mass"])
+        return out
 
     @property
     def status(self) -> str:
