@@ -16,7 +16,8 @@ store.memory.MemoryRun are the two):
 5. `region` — the measure region (a, b) or None; `analysis()` — the saved
    analysis dict or None; `path` — where it lives (a label for an in-memory run).
 6. `close()`, and use as a context manager.
-The base class derives the rest (units, packet, reference, scenario(), snapshots()).
+The base class derives the rest (units, packet, reference, scenario(), snapshots(),
+psi_rows(indices): several snapshots at once; a backend may read them in one go).
 """
 from __future__ import annotations
 
@@ -116,6 +117,11 @@ class RunReader(ABC):
             source = str(attrs.get("scenario_source") or Path(str(self.path)).with_suffix(".yaml"))
             self._scenario = load_scenario_text(str(attrs["scenario"]), source, Path(source).parent)
         return self._scenario
+
+    def psi_rows(self, indices) -> np.ndarray:
+        """Snapshots `indices` (committed, non-negative) as a (len, N) array."""
+        rows = [self.psi(self._index(int(i))) for i in indices]
+        return np.stack(rows) if rows else np.zeros((0, len(self.x)), complex)
 
     def snapshots(self) -> Iterator[tuple[float, np.ndarray]]:
         """Iterate (t, ψ) one snapshot at a time."""
@@ -252,6 +258,26 @@ class RunFile(RunReader):
         except (OSError, RuntimeError) as exc:
             raise RunFileError(f"{self.path}: snapshot {i} fails its checksum or cannot be read; "
                                f"the file is damaged ({one_line(exc, 80)})") from None
+
+    def psi_rows(self, indices) -> np.ndarray:
+        """Only the rows asked are read: one strided hyperslab for evenly spaced
+        rows (a slice), otherwise the distinct rows in increasing order."""
+        rows = np.asarray([self._index(int(i)) for i in indices], dtype=np.int64)
+        dataset = self.h5["snapshots/psi"]
+        if len(rows) == 0:
+            return np.zeros((0, dataset.shape[1]), dataset.dtype)
+        step = int(rows[1] - rows[0]) if len(rows) > 1 else 1
+        try:
+            if step != 0 and np.array_equal(np.diff(rows), np.full(len(rows) - 1, step)):
+                first, last = (rows[0], rows[-1]) if step > 0 else (rows[-1], rows[0])
+                block = dataset[first:last + 1:abs(step)]
+                return block if step > 0 else block[::-1]
+            distinct, back = np.unique(rows, return_inverse=True)
+            return dataset[distinct.tolist()][back]
+        except (OSError, RuntimeError) as exc:
+            raise RunFileError(f"{self.path}: snapshots {rows[0]}..{rows[-1]} fail their "
+                               f"checksum or cannot be read; the file is damaged "
+                               f"({one_line(exc, 80)})") from None
 
     def observables(self) -> dict:
         return {name: self._read(f"observables/{name}", len(self)) for name in ("t",) + OBSERVABLES}
