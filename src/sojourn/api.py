@@ -40,8 +40,9 @@ class Snapshots:
 
     def __init__(self, reader: RunReader, density: bool = False):
         self._reader, self._density = reader, density
-        self.dtype = np.dtype(float) if density else reader.psi(0).dtype if len(reader) else \
-            np.dtype(complex)
+        single = reader.attrs.get("precision") == "single"    # as store.layout.psi_dtype
+        self.dtype = np.dtype(("f4" if single else "f8") if density else
+                              ("c8" if single else "c16"))
 
     @property
     def shape(self) -> tuple[int, int]:
