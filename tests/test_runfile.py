@@ -25,7 +25,8 @@ def test_layout_as_documented(run_scenario):
     setup, path = run_scenario(SMALL)
     with h5py.File(path, "r") as f:
         assert f.attrs["format"] == FORMAT and f.attrs["status"] == "complete"
-        assert "scenario" in f.attrs and "provenance" in f.attrs and "units" in f.attrs
+        assert "scenario" in f.attrs and all(
+            isinstance(f[key], h5py.Group) for key in ("provenance", "units", "packet"))
         n = f["grid/x"].shape[0]
         assert n == 512 and f["potential/V"].shape == (n,) and f["potential/absorber"].shape == (n,)
         s = f["snapshots/t"].shape[0]
@@ -36,7 +37,7 @@ def test_layout_as_documented(run_scenario):
             assert f["observables"][name].shape == (s,)
         assert f["observables/samples/flux"].shape[1] == 1
         # generic HDF5 readers see labelled axes
-        assert f["snapshots/psi"].dims[1][0].name == "/grid/x"
+        assert f["snapshots/psi"].dims[1][0].name == "/snapshots/x"
         assert f["snapshots/psi"].dims[0][0].name == "/snapshots/t"
     assert not partial_path(path).exists()
 

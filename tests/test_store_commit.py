@@ -82,9 +82,26 @@ def test_save_analysis_writes_strict_json_into_the_file(run_scenario, tmp_path):
     assert text_file.read_text() == "mine"
 
 
+def as_format_2(path):
+    """Rewrite a run file into format 2's layout (units, packet and provenance as
+    JSON text in root attributes, the internal mass under "mass", no scales in
+    /potential, /snapshots and /observables/samples)."""
+    with h5py.File(path, "r+") as f:
+        f.attrs["format_version"] = 2
+        for key in ("units", "packet", "provenance"):
+            f.attrs[key] = json.dumps({k: (v.item() if hasattr(v, "item") else v)
+                                       for k, v in f[key].attrs.items()})
+            del f[key]
+        f.attrs["mass"] = f.attrs["mass_internal"]
+        del f.attrs["mass_internal"]
+        for name in ("potential/x", "snapshots/x", "observables/samples/detector"):
+            del f[name]
+
+
 def _as_format_1(path):
     """Rewrite a run file into format 1's layout (rows grown as written, one
     checkpoint state with its numbers in a vector, no commit counter)."""
+    as_format_2(path)
     with h5py.File(path, "r+") as f:
         f.attrs["format_version"] = 1
         del f.attrs["finished"]
@@ -107,3 +124,14 @@ def test_a_format_1_file_stays_readable(run_scenario, tmp_path):
         assert len(rf) == setup.snapshots       # the two extra ψ rows are not snapshots
         assert np.array_equal(rf.times, times) and np.array_equal(rf.psi(-1), last)
         assert np.array_equal(rf.samples()["flux"], samples["flux"])
+
+
+def test_a_format_2_file_reads_with_the_same_attributes(run_scenario):
+    setup, path = run_scenario(SMALL)
+    with RunFile(path) as rf:
+        attrs, units, packet = rf.attrs, rf.units, rf.packet
+    as_format_2(path)
+    with RunFile(path) as rf:
+        assert rf.units == units and rf.packet == packet
+        assert rf.attrs["mass"] == pytest.approx(attrs["mass"], rel=1e-15)
+        assert rf.attrs["mass_internal"] == attrs["mass_internal"] == setup.mass

@@ -95,7 +95,7 @@ class ForwardRun:
         return cls.build(x=rf.x, V=rf.V, W=rf.absorber, times=rf.times, samples=rf.samples(),
                          observables=rf.observables(),
                          packet=packets.PacketInfo(**rf.packet), hbar=attrs["hbar"],
-                         mass=attrs["mass"], dt=attrs["dt"], reference=rf.reference,
+                         mass=attrs["mass_internal"], dt=attrs["dt"], reference=rf.reference,
                          region=rf.region, support=potential.support(),
                          levels=potential.levels(), states=rf)
 

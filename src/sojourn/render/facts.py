@@ -56,7 +56,7 @@ def run_facts(run: RunFile) -> RunFacts:
     support = potential.support() if potential is not None else None
     edge = run.reference if support is None else (support[1] if info.k0 >= 0 else support[0])
     return RunFacts(title=str(title or attrs.get("title", "")), units=run.units,
-                    hbar=float(attrs["hbar"]), mass=float(attrs["mass"]),
+                    hbar=float(attrs["hbar"]), mass=float(attrs["mass_internal"]),
                     packet=info, reference=run.reference, x=x, V=run.V,
                     inner=(float(free[0]), float(free[-1])), times=run.times,
                     analysis=run.analysis(), scenario=scenario, potential=potential,

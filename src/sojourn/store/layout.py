@@ -1,14 +1,27 @@
 """The run file's layout, written down once: what the writer creates and what
 every reader checks on open (README.md describes it for people).
 
-    /                  attributes ROOT_ATTRS (the scenario text, units, numbers of the run)
+    /                  attributes ROOT_ATTRS (the scenario text, numbers of the run;
+                       "mass" in electron masses as the scenario gives it, "mass_internal"
+                       in energy·time²/length²)
+    /units, /packet, /provenance   groups whose attributes are the unit system, the packet's
+                       numbers (PACKET_KEYS) and where the run was made (STRUCTURED)
     /grid/x            (N,) float, strictly increasing
-    /potential/V       (N,) float; /potential/absorber (N,) float when there is one
-    /snapshots/t, step, psi     (S,), (S,), (S, N) complex — S rows allocated at the start;
-                       attrs "committed": how many rows hold committed snapshots
+    /potential/x, V    (N,) float; /potential/absorber (N,) float when there is one
+    /snapshots/x, t, step, psi  (N,), (S,), (S,), (S, N) complex — S rows allocated at the
+                       start; attrs "committed": how many rows hold committed snapshots
     /observables/NAME  (S,) float for NAME in ("t",) + OBSERVABLES; attrs region, reference
-    /observables/samples/t, NAME, flux   (M,), (M,), (M, D): the samples between snapshots
-                       (M rows allocated at the start); attrs detectors (D or 0 positions)
+    /observables/samples/t, NAME, flux, detector   (M,), (M,), (M, D), (D,): the samples
+                       between snapshots (M rows allocated at the start); attrs detectors
+                       (D or 0 positions; `detector` holds NaN when there are none)
+
+Files other tools read (netCDF-4 dimension-scale conventions): every group's
+datasets are attached to dimension scales that live in that group (x, t,
+detector; x is copied into /potential and /snapshots), so that
+`xarray.open_dataset(path, group="snapshots", engine="h5netcdf")` opens with
+named coordinates; every dataset has `units` (UDUNITS-style, see `udunits`)
+and `long_name` attributes. ψ is HDF5's compound complex (fields r, i), which
+h5netcdf reads as complex. Rows past the commit counters hold the fill value.
     /checkpoint/a, /checkpoint/b   two slots, each psi (N,) complex and attrs
                        step, t, snapshots, samples, absorbed_left, absorbed_right
 
@@ -34,9 +47,11 @@ import scipy
 
 from .. import __version__
 from ..errors import RunFileError
+from .conventions import (STRUCTURED, attach as _attach, label as _label, read_structured,
+                          scale as _scale, udunits, write_structured)
 
 FORMAT = "sojourn.run"
-FORMAT_VERSION = 2
+FORMAT_VERSION = 3     # 3: dimension scales per group, units/long_name, structured groups
 OBSERVABLES = ("norm", "x_mean", "p_mean", "energy", "P_left", "P_right", "P_region",
                "absorbed_left", "absorbed_right")
 SAMPLES = ("norm", "P_region", "absorbed_left", "absorbed_right")
@@ -47,10 +62,11 @@ SLOT_ATTRS = {"step": "int", "t": "float", "snapshots": "int", "samples": "int",
 ROOT_ATTRS = {
     "format": "str", "format_version": "int", "sojourn_version": "str", "status": "str",
     "created": "str", "finished": "str", "scenario": "str", "scenario_source": "str",
-    "title": "str", "units": "json", "provenance": "json", "dt": "float", "steps": "int",
+    "title": "str", "dt": "float", "steps": "int",
     "record_steps": "int", "sample_steps": "int", "scheme": "str", "precision": "str",
-    "hbar": "float", "mass": "float", "reference": "float", "packet": "json",
+    "hbar": "float", "mass": "float", "mass_internal": "float", "reference": "float",
 }
+UNIT_KEYS = ("name", "length", "energy", "time", "mass")
 PACKET_KEYS = ("center", "width", "k0", "sigma_k", "energy", "mean_energy", "group_velocity",
                "level")
 # dataset -> (dtype kind, shape in symbols); N grid points, S snapshot rows, M sample rows,
@@ -63,11 +79,12 @@ DATASETS = {
     **{f"observables/samples/{name}": ("f", ("M",)) for name in ("t",) + SAMPLES},
     "observables/samples/flux": ("f", ("M", "D")),
     **{f"checkpoint/{slot}/psi": ("c", ("N",)) for slot in SLOTS},
+    "potential/x": ("f", ("N",)), "snapshots/x": ("f", ("N",)),
+    "observables/samples/detector": ("f", ("D",)),
 }
 OPTIONAL = {"potential/absorber": ("f", ("N",))}
 SMALL = ("grid/x", "potential/V", "potential/absorber")   # checked finite on open
-
-
+SCALES = ("potential/x", "snapshots/x", "observables/samples/detector")   # new in version 3
 def provenance(backend: str) -> dict:
     cpu = platform.processor() or platform.machine()
     try:
@@ -92,8 +109,8 @@ def root_attributes(setup, backend: str) -> dict:
         "provenance": json.dumps(provenance(backend)),
         "dt": float(setup.dt), "steps": int(setup.steps), "record_steps": int(setup.record_steps),
         "sample_steps": int(setup.sample_steps), "scheme": sc.evolve.scheme,
-        "precision": sc.evolve.precision, "hbar": float(setup.hbar), "mass": float(setup.mass),
-        "reference": float(setup.reference), "packet": json.dumps(setup.packet.__dict__),
+        "precision": sc.evolve.precision, "hbar": float(setup.hbar), "mass": float(sc.mass),
+        "mass_internal": float(setup.mass), "reference": float(setup.reference), "packet": json.dumps(setup.packet.__dict__),
     }
 
 
@@ -134,44 +151,50 @@ def allocated_bytes(setup, compress: bool) -> int:
 def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
     """Write the layout of a new run into an empty file (S rows allocated)."""
     sc = setup.scenario
-    u = sc.unit_system
-    f.attrs.update(root_attributes(setup, backend))
+    u = udunits(sc.unit_system.as_dict())
+    attrs = root_attributes(setup, backend)
+    f.attrs.update({k: v for k, v in attrs.items() if k not in STRUCTURED})
+    write_structured(f, attrs)
     n, rows = setup.grid.points, setup.snapshots
-    grid = f.create_group("grid")
-    x = grid.create_dataset("x", data=setup.grid.x)
-    x.attrs.update({"units": u.length, "dx": setup.grid.dx})
-    x.make_scale("x")
+    x = _scale(f.create_group("grid"), "x", setup.grid.x, u)
+    x.attrs["dx"] = setup.grid.dx
     pot = f.create_group("potential")
-    pot.create_dataset("V", data=setup.V).attrs["units"] = u.energy
-    pot["V"].dims[0].attach_scale(x)
+    px = _scale(pot, "x", setup.grid.x, u)
+    _attach(pot.create_dataset("V", data=setup.V), u, px)
     pot.attrs["description"] = setup.potential.describe()
     if setup.W is not None:
-        pot.create_dataset("absorber", data=setup.W).attrs["units"] = u.energy
-        pot["absorber"].dims[0].attach_scale(x)
+        _attach(pot.create_dataset("absorber", data=setup.W), u, px)
     snaps = f.create_group("snapshots")
+    sx = _scale(snaps, "x", setup.grid.x, u)
     t = _rows(snaps, "t", rows)
-    t.attrs["units"] = u.time
+    _label(t, u)
     t.make_scale("t")
-    _rows(snaps, "step", rows, dtype="i8")
+    _attach(_rows(snaps, "step", rows, dtype="i8"), u, t)
     psi = snaps.create_dataset(
         "psi", shape=(rows, n), maxshape=(None, n), chunks=(1, n), dtype=psi_dtype(setup),
         fletcher32=True, dcpl=_early(),
         **({"compression": "gzip", "compression_opts": 1, "shuffle": True} if compress else {}))
-    psi.dims[0].attach_scale(t)
-    psi.dims[1].attach_scale(x)
+    _attach(psi, u, t, sx)
     snaps.attrs["committed"] = np.int64(0)
     obs = f.create_group("observables")
-    _rows(obs, "t", rows).attrs["units"] = u.time
+    ot = _rows(obs, "t", rows)
+    _label(ot, u)
+    ot.make_scale("t")
     for name in OBSERVABLES:
-        _rows(obs, name, rows)
+        _attach(_rows(obs, name, rows), u, ot)
     obs.attrs["region"] = np.array(setup.region if setup.region else (np.nan, np.nan), float)
     obs.attrs["reference"] = float(setup.reference)
     samples = obs.create_group("samples")
     m = sample_rows(setup)
-    _rows(samples, "t", m).attrs["units"] = u.time
+    st = _rows(samples, "t", m)
+    _label(st, u)
+    st.make_scale("t")
     for name in SAMPLES:
-        _rows(samples, name, m)
-    _rows(samples, "flux", m, (max(len(setup.detectors), 1),))
+        _attach(_rows(samples, name, m), u, st)
+    columns = max(len(setup.detectors), 1)
+    detector = _scale(samples, "detector", np.array(setup.detectors, dtype=float)
+                      if setup.detectors else np.full(1, np.nan), u)
+    _attach(_rows(samples, "flux", m, (columns,)), u, st, detector)
     samples.attrs["detectors"] = np.array(setup.detectors, dtype=float)
     ck = f.create_group("checkpoint")
     for slot in SLOTS:
@@ -223,22 +246,47 @@ def _attr(node, key, kind, path, where):
 
 
 def _datasets(version: int) -> dict:
-    """The required datasets of a format version. Version 1 (read only) grew its
-    rows as it went: ψ may hold a few rows past the others, and its checkpoint
-    was one state, not two slots."""
-    if version >= 2:
+    """The required datasets of a format version. Versions 1 and 2 (read only)
+    had no scales in /potential, /snapshots and /observables/samples; version 1
+    grew its rows as it went: ψ may hold a few rows past the others, and its
+    checkpoint was one state, not two slots."""
+    if version >= 3:
         return DATASETS
-    out = {k: v for k, v in DATASETS.items() if not k.startswith("checkpoint/")}
+    out = {k: v for k, v in DATASETS.items() if k not in SCALES}
+    if version >= 2:
+        return out
+    out = {k: v for k, v in out.items() if not k.startswith("checkpoint/")}
     out["snapshots/psi"] = ("c", ("P", "N"))
+    return out
+
+
+def root_kinds(version: int) -> dict:
+    """The root attributes of a format version, name -> kind."""
+    if version >= 3:
+        return ROOT_ATTRS
+    kinds = {k: v for k, v in ROOT_ATTRS.items() if k != "mass_internal"
+             and (version >= 2 or k != "finished")}
+    return {**kinds, **{key: "json" for key in STRUCTURED}}
+
+
+def structured(f: h5py.File, path, version: int) -> dict:
+    """The STRUCTURED entries as dicts: groups of attributes from version 3, JSON before."""
+    if version < 3:
+        return {key: _attr(f, key, "json", path, "/") for key in STRUCTURED}
+    out = {}
+    for key in STRUCTURED:
+        if not isinstance(f.get(key), h5py.Group):
+            _fail(path, f"group /{key} is missing")
+        out[key] = read_structured(f, key)
     return out
 
 
 def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
     """Check the file against the layout above; raise RunFileError naming the
     first thing missing or wrong. Returns what is committed."""
-    attrs = {key: _attr(f, key, kind, path, "/") for key, kind in ROOT_ATTRS.items()
-             if version >= 2 or key != "finished"}
-    for key in ("dt", "hbar", "mass"):
+    attrs = {key: _attr(f, key, kind, path, "/") for key, kind in root_kinds(version).items()}
+    attrs.update(structured(f, path, version))
+    for key in ("dt", "hbar", "mass") + (("mass_internal",) if version >= 3 else ()):
         if attrs[key] <= 0:
             _fail(path, f"attribute /{key} is not positive")
     for key in ("steps", "record_steps", "sample_steps"):
@@ -247,6 +295,9 @@ def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
     for key in ("length", "energy", "time"):
         if not isinstance(attrs["units"].get(key), str):
             _fail(path, f"attribute /units has no '{key}'")
+    if version >= 3 and not all(isinstance(attrs["units"].get(k), (int, float))
+                                and attrs["units"][k] > 0 for k in ("hbar", "electron_mass")):
+        _fail(path, "attribute /units has no positive 'hbar' and 'electron_mass'")
     packet = attrs["packet"]
     for key in PACKET_KEYS:
         if not isinstance(packet.get(key), (int, float)) or not np.isfinite(packet[key]):

@@ -4,7 +4,9 @@ RunReader's contract — what a storage backend provides (RunFile and
 store.memory.MemoryRun are the two):
 
 1. `attrs` — the root attributes of store.layout.ROOT_ATTRS as a dict (numbers
-   as numbers, JSON as text); `status` — running, interrupted, failed or complete.
+   as numbers; "mass" in electron masses, "mass_internal" in the units' energy·time²/
+   length²) and the layout.STRUCTURED entries (units, packet, provenance) as JSON
+   text; `status` — running, interrupted, failed or complete.
 2. `x`, `V` — the grid and potential as (N,) float arrays; `absorber` — (N,) or None.
 3. `len(reader)` — the committed snapshots; `times` — their (len,) times;
    `psi(i)` — snapshot i as an (N,) complex array (negative i counts from the end);
@@ -14,7 +16,8 @@ store.memory.MemoryRun are the two):
 5. `region` — the measure region (a, b) or None; `analysis()` — the saved
    analysis dict or None; `path` — where it lives (a label for an in-memory run).
 6. `close()`, and use as a context manager.
-The base class derives the rest (units, packet, reference, scenario(), snapshots()).
+The base class derives the rest (units, packet, reference, scenario(), snapshots(),
+psi_rows(indices): several snapshots at once; a backend may read them in one go).
 """
 from __future__ import annotations
 
@@ -115,6 +118,11 @@ class RunReader(ABC):
             self._scenario = load_scenario_text(str(attrs["scenario"]), source, Path(source).parent)
         return self._scenario
 
+    def psi_rows(self, indices) -> np.ndarray:
+        """Snapshots `indices` (committed, non-negative) as a (len, N) array."""
+        rows = [self.psi(self._index(int(i))) for i in indices]
+        return np.stack(rows) if rows else np.zeros((0, len(self.x)), complex)
+
     def snapshots(self) -> Iterator[tuple[float, np.ndarray]]:
         """Iterate (t, ψ) one snapshot at a time."""
         times = self.times
@@ -179,6 +187,7 @@ class RunFile(RunReader):
                                    "upgrade sojourn")
             if version < 1:
                 raise RunFileError(f"{self.path}: damaged run file (format version {version})")
+            self.version = version
             self.committed = layout.validate(self.h5, self.path, version)
         except (OSError, RuntimeError, KeyError, TypeError, ValueError) as exc:
             self.h5.close()
@@ -202,8 +211,17 @@ class RunFile(RunReader):
 
     @cached_property
     def attrs(self) -> dict:
-        return {key: (value.decode("utf-8", "replace") if isinstance(value, bytes) else value)
-                for key, value in self.h5.attrs.items()}
+        """The root attributes in the contract's form, whatever the format version:
+        STRUCTURED entries as JSON text, "mass" in electron masses, "mass_internal"."""
+        out = {key: (value.decode("utf-8", "replace") if isinstance(value, bytes) else value)
+               for key, value in self.h5.attrs.items()}
+        if self.version >= 3:
+            out.update({key: json.dumps(layout.read_structured(self.h5, key))
+                        for key in layout.STRUCTURED})
+        else:   # versions 1, 2 kept the internal mass under "mass"
+            out["mass_internal"] = out["mass"]
+            out["mass"] = float(out["mass"]) / float(json.loads(out["units"])["electron_mass"])
+        return out
 
     @property
     def status(self) -> str:
@@ -240,6 +258,26 @@ class RunFile(RunReader):
         except (OSError, RuntimeError) as exc:
             raise RunFileError(f"{self.path}: snapshot {i} fails its checksum or cannot be read; "
                                f"the file is damaged ({one_line(exc, 80)})") from None
+
+    def psi_rows(self, indices) -> np.ndarray:
+        """Only the rows asked are read: one strided hyperslab for evenly spaced
+        rows (a slice), otherwise the distinct rows in increasing order."""
+        rows = np.asarray([self._index(int(i)) for i in indices], dtype=np.int64)
+        dataset = self.h5["snapshots/psi"]
+        if len(rows) == 0:
+            return np.zeros((0, dataset.shape[1]), dataset.dtype)
+        step = int(rows[1] - rows[0]) if len(rows) > 1 else 1
+        try:
+            if step != 0 and np.array_equal(np.diff(rows), np.full(len(rows) - 1, step)):
+                first, last = (rows[0], rows[-1]) if step > 0 else (rows[-1], rows[0])
+                block = dataset[first:last + 1:abs(step)]
+                return block if step > 0 else block[::-1]
+            distinct, back = np.unique(rows, return_inverse=True)
+            return dataset[distinct.tolist()][back]
+        except (OSError, RuntimeError) as exc:
+            raise RunFileError(f"{self.path}: snapshots {rows[0]}..{rows[-1]} fail their "
+                               f"checksum or cannot be read; the file is damaged "
+                               f"({one_line(exc, 80)})") from None
 
     def observables(self) -> dict:
         return {name: self._read(f"observables/{name}", len(self)) for name in ("t",) + OBSERVABLES}
