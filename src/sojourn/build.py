@@ -77,6 +77,8 @@ OVERLAP_AIM = 1e-4     # incident tail still crossing the detector after the spl
 BAND = 4.0             # the band k₀ ± 4σ_k whose every component auto durations wait for
 CLEAR = 6.0            # initial widths behind the centre the slowest component starts
 RELEVANT = 1e-6        # a channel's probability below which its component is not waited for
+SEPARATION = 6.0       # widths between an outgoing packet and the potential / box edge (as measure)
+HELD = 1e-7            # probability the potential may still hold at the end of an auto run
 
 
 @dataclass(frozen=True)
@@ -165,6 +167,36 @@ def _default_detectors(potential, packet, grid, reference, absorber_width, band,
     return out
 
 
+def _clear_time(info, hbar, mass, x0, xr, target, start) -> float:
+    """When the central outgoing packet is 5σ(t) past its detector (σ(t) the free
+    width): the guards' own test of a duration, met here too."""
+    v0 = abs(info.group_velocity)
+    travel = (xr - x0) + abs(target - start)
+    t = travel / v0
+    for _ in range(50):
+        t = (travel + 5 * float(packets.free_width(info.width, t, hbar, mass))) / v0
+    return 1.01 * t
+
+
+def _separation_width(info, hbar, mass, tau, incoming, speed) -> float:
+    """σ(t) when the central outgoing packet is SEPARATION widths past the potential."""
+    t = incoming / abs(info.group_velocity) + max(tau, 0.0)
+    for _ in range(50):
+        t = incoming / abs(info.group_velocity) + max(tau, 0.0) + SEPARATION * float(
+            packets.free_width(info.width, t, hbar, mass)) / max(speed, 1e-300)
+    return float(packets.free_width(info.width, t, hbar, mass))
+
+
+def hold_time(band: Band) -> float:
+    """How long the potential may still hold probability after the passages:
+    what it holds leaks out at least as fast as e^(−2t/τ_max) (a resonance of
+    width Γ holds it for ħ/Γ = τ_max/2, and τ_max = 2ħ/Γ); wait until less
+    than HELD is left."""
+    taus = np.concatenate([band.tau_R[band.R >= RELEVANT], band.tau_T[band.T >= RELEVANT]])
+    taus = taus[np.isfinite(taus)]
+    return 0.5 * max(float(np.max(taus)), 0.0) * math.log(1 / HELD) if taus.size else 0.0
+
+
 def auto_duration(info, band: Band, hbar, mass, reference, detectors, inner):
     """(duration, refusal or None) for `duration: auto`: the latest time at which
     a component of the band k₀ ± 4σ_k, starting CLEAR initial widths σ₀ behind
@@ -181,6 +213,7 @@ def auto_duration(info, band: Band, hbar, mass, reference, detectors, inner):
     v = hbar * band.k / mass
     vq = hbar * band.q / mass
     needed, cap, reach = 0.0, 0.0, None
+    hold = hold_time(band)
     for channel, prob, tau, speed, start, target, edge in (
             ("reflection", band.R, band.tau_R, v, xr, d_r, near),
             ("transmission", band.T, band.tau_T, vq, xt, d_t, far)):
@@ -192,20 +225,32 @@ def auto_duration(info, band: Band, hbar, mass, reference, detectors, inner):
         t_in = (xr - x0 + CLEAR * info.width) / v[use] + np.maximum(tau[use], 0.0)
         t = t_in + abs(target - start) / speed[use]
         slow = int(np.argmax(t))
-        needed = max(needed, float(t[slow]))
+        needed = max(needed, float(t[slow]), _clear_time(info, hbar, mass, x0, xr, target, start))
         room = abs(edge - start)
-        cap_here = float(t_in[slow] + room / speed[use][slow])
+        # measured whole: the packet SEPARATION widths from the potential and from the edge
+        width = _separation_width(info, hbar, mass, float(np.interp(abs(info.k0), band.k, tau)),
+                                  xr - x0, float(np.interp(abs(info.k0), band.k, speed)))
+        if room < 2 * SEPARATION * width:
+            past = 2 * SEPARATION * width - room
+            reach = (channel, s * (edge - past if channel == "reflection" else edge + past),
+                     f"separate from the potential whole ({2 * SEPARATION:g} widths, "
+                     f"{2 * SEPARATION * width:.4g}, of room beyond it; the box has {room:.4g})")
+            continue
+        cap_here = float(t_in[slow] + room / speed[use][slow]) + hold_time(band)
         cap = max(cap, cap_here)
         if t[slow] > cap_here:
             past = (t[slow] - t_in[slow]) * speed[use][slow] - room
-            reach = (channel, s * (edge - past if channel == "reflection" else edge + past))
+            reach = (channel, s * (edge - past if channel == "reflection" else edge + past),
+                     f"clear its detector (it needs t ≈ {needed:.4g}, the box allows "
+                     f"{cap:.4g})")
     if needed <= 0:
         return None, "no outgoing channel carries the packet (R and T both below 1e-6)"
+    needed += hold
     if reach is not None:
-        channel, edge = reach
-        return cap, (f"auto: the {channel} passage cannot clear its detector inside the box "
-                     f"(it needs t ≈ {needed:.4g}, the box allows {cap:.4g}); a box whose "
-                     f"inner part (inside the absorbers) reaches x = {edge:.4g} would do")
+        channel, edge, what = reach
+        return max(cap, needed), (f"auto: the {channel} packet cannot {what} inside the box; "
+                                  f"a box whose inner part (inside the absorbers) reaches "
+                                  f"x = {edge:.4g} would do")
     return needed, None
 
 
@@ -359,7 +404,7 @@ def _resolve_auto(scenario, potential, info, band, reference, detectors, inner, 
         findings.append(Finding("error", "evolve.duration",
                                 f"auto: {why}, so there is no outgoing packet to wait for; "
                                 "give the duration as a number"))
-        return abs(reference - info.center) / max(abs(info.group_velocity), 1e-300) + 1.0
+        return 1.0   # any finite span: the finding refuses the run
     duration, refusal = auto_duration(info, band, scenario.hbar, scenario.particle_mass,
                                       reference, detectors, inner)
     if refusal is not None:
