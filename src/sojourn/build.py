@@ -152,8 +152,9 @@ def _default_detectors(potential, packet, grid, reference, absorber_width, band,
     inner_right = grid.right - absorber_width
     sign = 1 if packet.k0 >= 0 else -1
     gap = abs(reference - packet.center)
-    reflected = band.mean_R if band is not None else 1.0
-    distance = max(gap / 2, reflection_gap(packet, hbar, mass, reference, reflected))
+    distance = gap / 2
+    if band is not None:    # a packet that scatters: move the detector to where passages part
+        distance = max(distance, reflection_gap(packet, hbar, mass, reference, band.mean_R))
     distance = min(distance, gap - 0.5 * packet.width)   # still after the packet's start
     out = [reference - sign * distance]
     if support is None:
@@ -228,8 +229,10 @@ def auto_duration(info, band: Band, hbar, mass, reference, detectors, inner):
         needed = max(needed, float(t[slow]), _clear_time(info, hbar, mass, x0, xr, target, start))
         room = abs(edge - start)
         # measured whole: the packet SEPARATION widths from the potential and from the edge
-        width = _separation_width(info, hbar, mass, float(np.interp(abs(info.k0), band.k, tau)),
-                                  xr - x0, float(np.interp(abs(info.k0), band.k, speed)))
+        # (the channel's mean component: its weight |ψ̃₀|² times its probability)
+        w = band.weight[use] * prob[use]
+        width = _separation_width(info, hbar, mass, float(np.sum(w * tau[use]) / np.sum(w)),
+                                  xr - x0, float(np.sum(w * speed[use]) / np.sum(w)))
         if room < 2 * SEPARATION * width:
             past = 2 * SEPARATION * width - room
             reach = (channel, s * (edge - past if channel == "reflection" else edge + past),
