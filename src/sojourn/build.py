@@ -191,11 +191,16 @@ def _separation_width(info, hbar, mass, tau, incoming, speed) -> float:
 def hold_time(band: Band) -> float:
     """How long the potential may still hold probability after the passages:
     what it holds leaks out at least as fast as e^(−2t/τ_max) (a resonance of
-    width Γ holds it for ħ/Γ = τ_max/2, and τ_max = 2ħ/Γ); wait until less
-    than HELD is left."""
-    taus = np.concatenate([band.tau_R[band.R >= RELEVANT], band.tau_T[band.T >= RELEVANT]])
-    taus = taus[np.isfinite(taus)]
-    return 0.5 * max(float(np.max(taus)), 0.0) * math.log(1 / HELD) if taus.size else 0.0
+    width Γ holds it for ħ/Γ = τ_max/2, and τ_max = 2ħ/Γ); the spread of τ
+    across the band stands for τ_max (a passage merely shifted in time holds
+    nothing). Wait until less than HELD is left."""
+    spread = 0.0
+    for tau, prob in ((band.tau_R, band.R), (band.tau_T, band.T)):
+        # a delay that varies across the band marks a stored (resonant) packet; a
+        # constant one is a shifted passage, which holds nothing once it has passed
+        taus = tau[(prob >= RELEVANT) & np.isfinite(tau)]
+        spread = max(spread, float(np.ptp(taus)) if taus.size else 0.0)
+    return 0.5 * spread * math.log(1 / HELD)
 
 
 def auto_duration(info, band: Band, hbar, mass, reference, detectors, inner):
