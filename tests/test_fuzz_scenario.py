@@ -249,7 +249,7 @@ def test_mutated_text_long(text, tmp_path_factory):
 @pytest.mark.parametrize("literal", [".nan", ".NaN", ".inf", "-.inf", "1.0e999"])
 @pytest.mark.parametrize("key,old", [
     ("mass", "mass: 0.067"), ("packet.width", "width: 20.0"), ("packet.energy", "energy: 0.08"),
-    ("packet.center", "center: -250.0"), ("evolve.duration", "duration: 1000.0"),
+    ("packet.center", "center: -250.0"), ("evolve.duration", "duration: auto"),
     ("absorber.width", "width: 80.0"), ("record.every", "every: 10.0"),
     ("measure.reference", "reference: 0.0"), ("potential[0].step.height", "height: 0.25"),
 ])

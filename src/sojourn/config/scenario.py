@@ -64,8 +64,17 @@ class PacketSpec(_Strict):
         return self
 
 
+def _duration_word(value):
+    """'auto' in any case stays the word; anything else is validated as a number."""
+    return value.strip().lower() if isinstance(value, str) and value.strip().lower() == "auto" \
+        else value
+
+
 class EvolveSpec(_Strict):
-    duration: float = Field(gt=0)
+    # a time, or 'auto': until every outgoing channel has left the potential and passed
+    # its detector (worked out by build from the packet and the stationary delays)
+    duration: Annotated[Union[Annotated[float, Field(gt=0)], Literal["auto"]],
+                        BeforeValidator(_duration_word)]
     dt: Optional[float] = Field(default=None, gt=0)
     scheme: Literal["strang", "yoshida4"] = "strang"
     precision: Literal["double", "single"] = "double"
