@@ -46,15 +46,12 @@ def run_scenario(path, output=None, overwrite=False, resume=False, force=False, 
     ensure_folder(final.parent)
     update, close = step_bar(setup, quiet, "running")
 
-    def step(done, total):   # a Ctrl-C or SIGTERM stops the run here, at a recording
-        if STOP["requested"]:
-            raise KeyboardInterrupt
-        if update:
-            update(done, total)
+    def stopping():   # a Ctrl-C or SIGTERM: the run checkpoints where it is and stops
+        return STOP["requested"]
 
     with stop_on_signals():
         try:
-            result = workflows.run(setup, final, overwrite, resume, step)
+            result = workflows.run(setup, final, overwrite, resume, update, stopping)
         finally:
             close()
     return result

@@ -38,6 +38,7 @@ class MemoryRun(RunReader):
         self._obs: dict = {name: [] for name in OBSERVABLES}
         self._samples: dict = {name: [] for name in ("t", "flux") + SAMPLES}
         self._analysis: Optional[dict] = None
+        self.resume_state: Optional[dict] = None   # the latest state (a snapshot or checkpoint)
 
     # -- the recorder ---------------------------------------------------------------------
     def snapshot(self, step: int, t: float, psi: np.ndarray, observables: dict,
@@ -49,6 +50,19 @@ class MemoryRun(RunReader):
         self._t.append(float(t))
         for name in OBSERVABLES:
             self._obs[name].append(float(observables[name]))
+        self._keep_samples(samples)
+        self.resume_state = {"step": int(step), "t": float(t), "psi": self._psi[-1],
+                             "raw_absorbed": tuple(map(float, raw_absorbed))}
+
+    def checkpoint(self, step: int, t: float, psi: np.ndarray, samples: dict,
+                   raw_absorbed: tuple[float, float]) -> None:
+        """Keep the samples since the last recording and the latest state
+        (`resume_state`: what `engine.loop.evolve` continues from)."""
+        self._keep_samples(samples)
+        self.resume_state = {"step": int(step), "t": float(t), "psi": np.array(psi, copy=True),
+                             "raw_absorbed": tuple(map(float, raw_absorbed))}
+
+    def _keep_samples(self, samples: dict) -> None:
         if len(samples["t"]):
             for name in ("t",) + SAMPLES:
                 self._samples[name].append(np.asarray(samples[name], dtype=float))
