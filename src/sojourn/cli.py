@@ -109,11 +109,24 @@ def add_check(sub) -> None:
 VERBS.append(add_check)
 
 
+def _flag_forced(run) -> None:
+    """Every command that reads a run says so when the run was forced past its guards."""
+    from .store import RunFile
+    if isinstance(run, (str, os.PathLike)):
+        with RunFile(run) as rf:
+            forced = str(rf.attrs.get("forced") or "")
+    else:
+        forced = str(run.attrs.get("forced") or "")
+    if forced:
+        _warn(f"warning: this run was forced past: {forced}")
+
+
 # --- inspect
 
 def cmd_inspect(args) -> int:
     from .store import RunFile
     with RunFile(args.file) as rf:
+        _flag_forced(rf)
         info = describe_runfile(rf, args.file)
     if args.json:
         _say(json.dumps(info, indent=2))
@@ -163,6 +176,7 @@ VERBS.append(add_demo)
 def cmd_delay(args) -> int:
     from . import measure
     from .store import save_analysis
+    _flag_forced(args.file)
     moves = None
     if args.verify:
         result = _verify(args.file)
@@ -271,6 +285,7 @@ def cmd_render(args) -> int:
     from . import render
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
+    _flag_forced(args.file)
     common = {}
     if args.xlim:
         common["xlim"] = render.parse_xlim(args.xlim)

@@ -14,7 +14,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from .build import Setup, build
-from .config.scenario import load, with_changes
+from .config.scenario import load, table_digests, with_changes
 from .engine.fft import backend_name
 from .engine.loop import evolve
 from .engine.propagate import ORDER
@@ -54,7 +54,7 @@ def run(setup: Setup, output: Optional[Path] = None, overwrite: bool = False,
     sc = setup.scenario
     final = Path(output) if output else output_path(sc)
     if resume:
-        writer, state = RunWriter.open_resume(final, sc.text)
+        writer, state = RunWriter.open_resume(final, sc.text, table_digests(sc))
     else:
         writer = RunWriter.open_new(final, setup, backend_name(), overwrite, sc.record.compress)
         state = None

@@ -16,6 +16,7 @@ from ..errors import RunFileError
 from . import layout
 from .layout import OBSERVABLES, SAMPLES
 from .reader import RunReader
+from .writer import self_description
 
 
 class MemoryRun(RunReader):
@@ -25,7 +26,7 @@ class MemoryRun(RunReader):
         if not hasattr(setup, "scenario") or not hasattr(setup, "grid"):
             raise TypeError("MemoryRun needs a built Setup (sojourn.build.build)")
         self.path = Path(f"<in memory: {setup.scenario.name}>")
-        self._attrs = layout.root_attributes(setup, backend)
+        self._attrs = {**layout.root_attributes(setup, backend), **self_description(setup)}
         self._x = np.array(setup.grid.x, dtype=float)
         self._V = np.array(setup.V, dtype=float)
         self._W = None if setup.W is None else np.array(setup.W, dtype=float)

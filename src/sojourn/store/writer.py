@@ -18,6 +18,7 @@ step holds the newest complete state.
 from __future__ import annotations
 
 import datetime as _dt
+import json
 import os
 import time
 from pathlib import Path
@@ -26,6 +27,7 @@ from typing import Optional
 import h5py
 import numpy as np
 
+from ..config.scenario import self_contained, table_digests
 from ..errors import RunFileError, one_line
 from . import layout
 from .layout import OBSERVABLES, SAMPLES, SLOTS
@@ -37,6 +39,17 @@ from .repair import clear_write_flags
 
 COMMIT_SECONDS = 2.0  # the most run time a crash can lose
 PSI_BLOCK = 16        # rows a dataset grows by if a run records more than planned
+
+
+def self_description(setup) -> dict:
+    """The root attributes that make a run independent of files outside it:
+    `scenario_resolved` (the scenario with every table's data inline, what
+    readers parse), `table_digests` (JSON list of each table file's SHA-256,
+    checked on resume) and `forced` (the guard findings the run was forced
+    past, '' for none; every later command flags them)."""
+    return {"scenario_resolved": self_contained(setup.scenario).text or "",
+            "table_digests": json.dumps(table_digests(setup.scenario)),
+            "forced": "; ".join(str(f) for f in setup.errors())}
 
 
 def _never_overwritten(final: Path) -> RunFileError:
@@ -106,6 +119,7 @@ class RunWriter:
             handle = create_exclusively(partial)
             try:
                 layout.create(handle, setup, backend, compress)
+                handle.attrs.update(self_description(setup))
                 handle.swmr_mode = True
             except Exception as exc:     # h5py reports a failed write as any of several
                 try:
@@ -122,9 +136,13 @@ class RunWriter:
 
     # -- resuming ------------------------------------------------------------------------
     @classmethod
-    def open_resume(cls, final: Path, scenario_text: str) -> tuple["RunWriter", dict]:
+    def open_resume(cls, final: Path, scenario_text: str,
+                    digests: Optional[list] = None) -> tuple["RunWriter", dict]:
         """Reopen NAME.h5.partial after a stop; returns the writer and the
-        checkpointed state (step, t, psi, raw_absorbed) to continue from."""
+        checkpointed state (step, t, psi, raw_absorbed) to continue from.
+        `digests` (config.scenario.table_digests of the scenario now) must
+        match those the run started with: a run is never continued on a
+        table file that changed."""
         final = Path(final)
         partial = partial_path(final)
         if regular_or_absent(partial) is None:
@@ -158,6 +176,11 @@ class RunWriter:
             if (handle.attrs.get("scenario") or "") != (scenario_text or ""):
                 raise RunFileError(f"{partial} was started from a different scenario text; "
                                    "it cannot be resumed with this one")
+            if digests is not None and "table_digests" in handle.attrs and \
+                    _text(handle.attrs["table_digests"]) != json.dumps(list(digests)):
+                raise RunFileError(f"{partial} was started with a table file whose content has "
+                                   "changed since (SHA-256 differs); it cannot be resumed: "
+                                   "restore the file, or start again with --overwrite")
             if committed.snapshots == 0:
                 raise RunFileError(f"{partial} holds no checkpoint yet; start again with --overwrite")
             state = _consistent_state(handle, committed, partial)
@@ -317,6 +340,10 @@ class RunWriter:
             self.lock.release()
             self.lock = None
         return self.final
+
+
+def _text(value) -> str:
+    return value.decode("utf-8", "replace") if isinstance(value, bytes) else str(value)
 
 
 def _consistent_state(f: h5py.File, committed: layout.Committed, path: Path) -> dict:
