@@ -10,6 +10,7 @@ import json
 import os
 import re
 import sys
+import warnings
 from pathlib import Path
 
 from . import __version__
@@ -283,6 +284,7 @@ VERBS.append(add_theory)
 
 def cmd_render(args) -> int:
     from . import render
+    from .render.options import parse_fps
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
     _flag_forced(args.file)
@@ -297,7 +299,7 @@ def cmd_render(args) -> int:
             {"size": render.parse_size(figure_size, "in")} if figure_size else {}), **(
             {"dpi": args.dpi} if args.dpi else {}))
     if args.output:
-        movie = render.MovieOptions(fps=args.fps, seconds=args.seconds, **common, **(
+        movie = render.MovieOptions(fps=parse_fps(args.fps), seconds=args.seconds, **common, **(
             {"size": render.parse_size(args.size, "px")} if args.size else {}), **(
             {"curves": render.parse_curves(args.curves)} if args.curves else {}))
         update, close = _frame_bar(args.quiet)
@@ -453,6 +455,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
+    if not sys.warnoptions:   # numbers past their range are reported in words, never as
+        warnings.simplefilter("ignore", RuntimeWarning)   # numpy's warnings with source lines
     argv = list(sys.argv[1:] if argv is None else argv)
     end = argv.index("--") if "--" in argv else len(argv)
     debug = "--debug" in argv[:end]
