@@ -10,6 +10,7 @@ import json
 import os
 import re
 import sys
+import warnings
 from pathlib import Path
 
 from . import __version__
@@ -46,15 +47,12 @@ def run_scenario(path, output=None, overwrite=False, resume=False, force=False, 
     ensure_folder(final.parent)
     update, close = step_bar(setup, quiet, "running")
 
-    def step(done, total):   # a Ctrl-C or SIGTERM stops the run here, at a recording
-        if STOP["requested"]:
-            raise KeyboardInterrupt
-        if update:
-            update(done, total)
+    def stopping():   # a Ctrl-C or SIGTERM: the run checkpoints where it is and stops
+        return STOP["requested"]
 
     with stop_on_signals():
         try:
-            result = workflows.run(setup, final, overwrite, resume, step)
+            result = workflows.run(setup, final, overwrite, resume, update, stopping)
         finally:
             close()
     return result
@@ -112,11 +110,24 @@ def add_check(sub) -> None:
 VERBS.append(add_check)
 
 
+def _flag_forced(run) -> None:
+    """Every command that reads a run says so when the run was forced past its guards."""
+    from .store import RunFile
+    if isinstance(run, (str, os.PathLike)):
+        with RunFile(run) as rf:
+            forced = str(rf.attrs.get("forced") or "")
+    else:
+        forced = str(run.attrs.get("forced") or "")
+    if forced:
+        _warn(f"warning: this run was forced past: {forced}")
+
+
 # --- inspect
 
 def cmd_inspect(args) -> int:
     from .store import RunFile
     with RunFile(args.file) as rf:
+        _flag_forced(rf)
         info = describe_runfile(rf, args.file)
     if args.json:
         _say(json.dumps(info, indent=2))
@@ -166,6 +177,7 @@ VERBS.append(add_demo)
 def cmd_delay(args) -> int:
     from . import measure
     from .store import save_analysis
+    _flag_forced(args.file)
     moves = None
     if args.verify:
         result = _verify(args.file)
@@ -272,8 +284,10 @@ VERBS.append(add_theory)
 
 def cmd_render(args) -> int:
     from . import render
+    from .render.options import parse_fps
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
+    _flag_forced(args.file)
     common = {}
     if args.xlim:
         common["xlim"] = render.parse_xlim(args.xlim)
@@ -285,7 +299,7 @@ def cmd_render(args) -> int:
             {"size": render.parse_size(figure_size, "in")} if figure_size else {}), **(
             {"dpi": args.dpi} if args.dpi else {}))
     if args.output:
-        movie = render.MovieOptions(fps=args.fps, seconds=args.seconds,
+        movie = render.MovieOptions(fps=parse_fps(args.fps), seconds=args.seconds,
                                     density_power=args.density_power, **common, **(
             {"size": render.parse_size(args.size, "px")} if args.size else {}), **(
             {"curves": render.parse_curves(args.curves)} if args.curves else {}))
@@ -444,6 +458,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
+    if not sys.warnoptions:   # numbers past their range are reported in words, never as
+        warnings.simplefilter("ignore", RuntimeWarning)   # numpy's warnings with source lines
     argv = list(sys.argv[1:] if argv is None else argv)
     end = argv.index("--") if "--" in argv else len(argv)
     debug = "--debug" in argv[:end]

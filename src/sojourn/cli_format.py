@@ -57,6 +57,8 @@ def format_inspect(info: dict) -> list:
              f"  FFT {info['provenance'].get('fft')}, CPU {info['provenance'].get('cpu')}"]
     if info["analysis"]:
         lines.append("  holds a saved delay analysis (/analysis)")
+    if info.get("forced"):
+        lines.append(f"  forced past: {info['forced']}")
     return lines
 
 
@@ -124,6 +126,7 @@ def describe_runfile(rf, path) -> dict:
         "detectors": [float(d) for d in rf.samples()["detectors"]],
         "final": {k: float(v[-1]) for k, v in obs.items() if len(v)},
         "analysis": rf.analysis() is not None,
+        "forced": str(attrs.get("forced") or ""),
     }
     return out
 

@@ -149,9 +149,10 @@ STOP = {"requested": False}
 
 
 def sigterm(signum, frame):
-    """The first signal asks the run to stop at its next recording (raising here,
-    at an arbitrary point, could land in a finalizer and be lost or print a
-    traceback); a second one stops at once."""
+    """The first signal asks the run to stop: the loop sees it within a fraction
+    of a second and checkpoints the current state (raising here, at an arbitrary
+    point, could land in a finalizer and be lost or print a traceback); a second
+    one stops at once."""
     if STOP["requested"]:
         raise KeyboardInterrupt
     STOP["requested"] = True
@@ -159,7 +160,7 @@ def sigterm(signum, frame):
 
 @contextlib.contextmanager
 def stop_on_signals():
-    """While a run goes: SIGTERM and Ctrl-C ask it to stop at its next recording."""
+    """While a run goes: SIGTERM and Ctrl-C ask it to stop (see `sigterm`)."""
     STOP["requested"] = False
     previous = {sig: signal.signal(sig, sigterm) for sig in (signal.SIGTERM, signal.SIGINT)}
     try:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 import os
 import shutil
+import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Optional
@@ -16,9 +17,21 @@ from .model import packets
 from .model.potentials import Potential
 from .model.terms import Step
 from .theory.scattering import scatter
+from .engine.propagate import Propagator
+from .model.grid import Grid
+from .store import layout
 from .store.paths import output_path
 
-STATE_COPIES = 8          # complex arrays of N the propagator and the recorder hold
+# A run's peak memory, fitted to peaks measured with `python -m sojourn run` at
+# 2^18-2^21 points (getrusage RUSAGE_CHILDREN ru_maxrss; within 10% at each):
+# FIXED_BYTES (the interpreter and its libraries) + N·(FLOAT_BYTES + STATE_COPIES·ψ item).
+STATE_COPIES = 10         # complex arrays of N: propagator buffer and factors, FFT plans, recorder
+FLOAT_BYTES = 36          # bytes per point in real arrays (x, V, W, the sampler's windows)
+FIXED_BYTES = 150 * 2**20
+FILE_OVERHEAD = 64 * 1024  # a run file's metadata past its allocated data (measured: < 30 KiB)
+ROW_OVERHEAD = 96          # per ψ row: its chunk's index entry and checksum (measured 40-83 B)
+MAX_RUN_SECONDS = 30 * 86400   # a longer estimated run is refused without --force
+CALIBRATION = {"points": 4096, "steps": 300}
 RESOLUTION_MARGIN = 2.0   # k_max ≥ margin·(|k₀| + 6σ_k)  (common practice, no source)
 DEFAULT_DT_PHASE = math.pi / 2  # default Δt·(E_max + ΔV)/ħ, well inside the limit of 2π
 RENDERING_WARN = 1e-3     # the relative change of R, T or a delay a resolved run aims at
@@ -50,9 +63,55 @@ class Finding:
         return f"{source}:{self.line}: {self}" if self.line else f"{source}: {self}"
 
 
+def memory_estimate(points: int, precision: str = "double") -> int:
+    """The peak memory of a run on `points` points (see STATE_COPIES)."""
+    item = 8 if precision == "single" else 16
+    return int(FIXED_BYTES + points * (FLOAT_BYTES + STATE_COPIES * item))
+
+
+def file_estimate(setup) -> int:
+    """The bytes of the run file: what the layout allocates, its metadata and
+    chunk overhead (with compression, ψ counted uncompressed: an upper bound)."""
+    return int(layout.allocated_bytes(setup, False) + FILE_OVERHEAD
+               + ROW_OVERHEAD * (setup.snapshots + 2))
+
+
+_STEP_SECONDS: dict = {}   # (scheme, precision) -> seconds per point·log2(point)·step
+
+
+def step_seconds(scheme: str, precision: str = "double") -> float:
+    """Seconds per N·log2 N per step on this machine, timed once per process on
+    a small grid with the real propagator (the FFTs dominate a step)."""
+    key = (scheme, precision)
+    if key not in _STEP_SECONDS:
+        n, steps = CALIBRATION["points"], CALIBRATION["steps"]
+        grid = Grid(-float(n) / 2, float(n) / 2, n)
+        prop = Propagator(grid, np.zeros(n), 1.0, 1.0, 0.01, scheme,
+                          single=precision == "single")
+        prop.set_state(np.exp(-grid.x ** 2 / 100 + 0.5j * grid.x).astype(complex))
+        prop.advance(10)   # plans and caches warmed
+        start = time.perf_counter()
+        prop.advance(steps)
+        _STEP_SECONDS[key] = (time.perf_counter() - start) / (steps * n * math.log2(n))
+    return _STEP_SECONDS[key]
+
+
+def run_time_estimate(points: int, steps: int, scheme: str, precision: str = "double") -> float:
+    """Seconds a run of `steps` steps on `points` points takes here (calibrated)."""
+    return step_seconds(scheme, precision) * steps * points * math.log2(max(points, 2))
+
+
+def _duration(seconds: float) -> str:
+    for unit, size in (("years", 365.25 * 86400), ("days", 86400), ("hours", 3600),
+                       ("minutes", 60)):
+        if seconds >= size:
+            return f"{seconds / size:.3g} {unit}"
+    return f"{seconds:.2g} s"
+
+
 def refuse_oversized(scenario) -> None:
     """Refuse, before any array exists, a grid that cannot fit in memory."""
-    memory = STATE_COPIES * scenario.grid.points * 16
+    memory = memory_estimate(scenario.grid.points, scenario.evolve.precision)
     available = _physical_memory()
     if available and memory > 0.8 * available:
         raise ScenarioError(f"{scenario.source}: grid.points: {scenario.grid.points} points need "
@@ -178,18 +237,26 @@ def guard(s, limit: float, absorber_width: float) -> None:
                         "between grid points: its cell is averaged so its position is kept"))
             break
 
-    # memory and disk
-    item = 8 if s.scenario.evolve.precision == "single" else 16
-    memory = STATE_COPIES * grid.points * 16
-    disk = s.snapshots * grid.points * item + grid.points * 8 * 3
+    # memory, disk and run time
+    memory = memory_estimate(grid.points, s.scenario.evolve.precision)
+    disk = file_estimate(s)
+    seconds = run_time_estimate(grid.points, s.steps, s.scenario.evolve.scheme,
+                                s.scenario.evolve.precision)
+    if seconds > MAX_RUN_SECONDS:
+        add(Finding("error", "evolve.duration",
+                    f"the run would take about {_duration(seconds)} here ({s.steps:.3g} steps of "
+                    f"{grid.points} points), more than {_duration(MAX_RUN_SECONDS)}; use a larger "
+                    "dt, fewer points or a shorter duration", forceable=True))
     out_dir = _output_dir(s.scenario)
     free = _free_disk(out_dir)
     if free is not None and disk > free:
         add(Finding("error", "record.every",
                     f"the run file needs about {_size(disk)} ({s.snapshots} snapshots of "
                     f"{grid.points} points); {out_dir} has {_size(free)} free"))
+    at_most = "at most " if s.scenario.record.compress else ""
     s.findings.append(Finding("info", "", f"estimated memory {_size(memory)}, run file "
-                                          f"{_size(disk)} ({s.snapshots} snapshots)"))
+                                          f"{at_most}{_size(disk)} ({s.snapshots} snapshots), "
+                                          f"run time {_duration(seconds)} here"))
 
 
 def _output_dir(scenario) -> Path:

@@ -14,7 +14,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from .build import Setup, build
-from .config.scenario import load, with_changes
+from .config.scenario import load, table_digests, with_changes
 from .engine.fft import backend_name
 from .engine.loop import evolve
 from .engine.propagate import ORDER
@@ -22,6 +22,7 @@ from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
 from .measure import DelayReport, measure_delays
 from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
+from .store.writer import COMMIT_SECONDS
 from .theory.states import synthesize as synthesize_states
 
 SAFETY = 1.25   # factor on the Richardson estimate (grid convergence index, Roache 1994)
@@ -33,18 +34,31 @@ def prepare(path) -> Setup:
 
 
 def run(setup: Setup, output: Optional[Path] = None, overwrite: bool = False,
-        resume: bool = False, progress: Optional[Callable[[int, int], None]] = None) -> Path:
+        resume: bool = False, progress: Optional[Callable[[int, int], None]] = None,
+        stop: Optional[Callable[[], bool]] = None,
+        checkpoint_seconds: Optional[float] = COMMIT_SECONDS) -> Path:
     """Run a built scenario into its run file (or continue a `.partial` one with
     `resume`); returns the final path. The file is renamed from `.partial` only
-    when the run is complete."""
+    when the run is complete.
+
+    `stop()` is asked every 0.01-0.1 s of run: when it says True the current
+    state is checkpointed, the file is closed 'interrupted' and
+    KeyboardInterrupt raised. A checkpoint is also written every
+    `checkpoint_seconds` of run without a recording (None: only at recordings)."""
+    if not isinstance(setup, Setup):
+        raise TypeError("run needs a built Setup (sojourn.build.build)")
+    if stop is not None and not callable(stop):
+        raise TypeError("stop must be a function of no arguments returning True to stop")
+    if checkpoint_seconds is not None and not checkpoint_seconds > 0:
+        raise ValueError(f"checkpoint_seconds must be > 0 or None (got {checkpoint_seconds!r})")
     sc = setup.scenario
     final = Path(output) if output else output_path(sc)
     if resume:
-        writer, state = RunWriter.open_resume(final, sc.text)
+        writer, state = RunWriter.open_resume(final, sc.text, table_digests(sc))
     else:
         writer = RunWriter.open_new(final, setup, backend_name(), overwrite, sc.record.compress)
         state = None
-    evolve(setup, writer, state, progress)
+    evolve(setup, writer, state, progress, stop, checkpoint_seconds)
     return writer.finish()
 
 

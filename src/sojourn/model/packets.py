@@ -64,7 +64,8 @@ def on_grid(grid, info: PacketInfo) -> np.ndarray:
 
 def free_width(width: float, t, hbar: float, mass: float):
     """rms width of a free Gaussian at time t: σ√(1 + (ħt/2mσ²)²)."""
-    return width * np.sqrt(1 + (hbar * np.asarray(t) / (2 * mass * width ** 2)) ** 2)
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):   # extremes: inf
+        return width * np.hypot(1.0, hbar * np.asarray(t, dtype=float) / (2 * mass * width ** 2))
 
 
 def free_evolution(x: np.ndarray, t: float, info: PacketInfo, hbar: float, mass: float) -> np.ndarray:

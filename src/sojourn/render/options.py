@@ -22,6 +22,9 @@ MAX_PIXELS = 7680          # longest movie side accepted (8K UHD)
 MAX_FIGURE_INCHES = 60.0
 MOVIE_DPI = 240            # pixels per inch when a movie size is given in inches
 PRINT_DPI = 300.0          # the one default resolution for print
+MIN_FPS, MAX_FPS = 1.0, 240.0   # frame rates an encoder takes (it rounds a rate below 1 to 0)
+XLIM_RESOLUTION = 1e-9     # an x range narrower than this share of its ends cannot be drawn
+XLIM_SMALLEST = 1e-30      # nor one narrower than this in any unit of length
 
 _SIZE = re.compile(r"^\s*([0-9.eE+-]+)\s*[x×]\s*([0-9.eE+-]+)\s*(px|in)?\s*$")
 
@@ -75,7 +78,22 @@ def parse_xlim(text: str) -> tuple[float, float]:
         raise RenderError(f"--xlim {text!r}: expected LEFT:RIGHT, e.g. -300:100") from None
     if not (math.isfinite(a) and math.isfinite(b)) or b <= a:
         raise RenderError(f"--xlim {text!r}: the right end must exceed the left end")
+    if b - a < max(XLIM_RESOLUTION * max(abs(a), abs(b)), XLIM_SMALLEST):
+        raise RenderError(f"--xlim {text!r}: the range is too narrow to draw (at least "
+                          f"{XLIM_RESOLUTION:g} of its ends' size and {XLIM_SMALLEST:g})")
     return (a, b)
+
+
+def parse_fps(value) -> float:
+    """A movie frame rate: a finite number from MIN_FPS to MAX_FPS."""
+    try:
+        fps = float(value)
+    except (TypeError, ValueError):
+        raise RenderError(f"--fps {value!r}: expected a number of frames per second") from None
+    if not (math.isfinite(fps) and MIN_FPS <= fps <= MAX_FPS):
+        raise RenderError(f"--fps {value!r}: choose a rate from {MIN_FPS:g} to {MAX_FPS:g} "
+                          "frames per second")
+    return fps
 
 
 def parse_curves(text: str) -> tuple[str, ...]:

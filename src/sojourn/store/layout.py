@@ -29,8 +29,9 @@ Every dataset is allocated at its final size when the run starts (its fill
 written), so a disk too small is found then and the file barely grows during
 the run (compressed ψ aside). A commit writes the new rows and the spare checkpoint slot, flushes, then
 writes /snapshots attrs "committed" LAST and flushes again. The committed state
-is the slot whose "snapshots" equals that counter; its "samples" says how many
-samples are committed. Rows past the counters are never read.
+is the slot whose "snapshots" equals that counter (of two, the one at the later
+step: a checkpoint between recordings); its "samples" says how many samples
+are committed. Rows past the counters are never read.
 """
 from __future__ import annotations
 
@@ -344,6 +345,8 @@ def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
     current = [s for s, values in slots.items() if values["snapshots"] == committed]
     if committed == 0:
         return Committed(0, 0, "", sizes["N"])
+    if len(current) == 2:   # a checkpoint between recordings: the later state is the newer
+        current = [max(current, key=lambda s: (slots[s]["step"], slots[s]["samples"]))]
     if len(current) != 1:
         _fail(path, f"no checkpoint slot matches the commit counter {committed}")
     samples = slots[current[0]]["samples"]

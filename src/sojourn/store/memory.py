@@ -16,6 +16,7 @@ from ..errors import RunFileError
 from . import layout
 from .layout import OBSERVABLES, SAMPLES
 from .reader import RunReader
+from .writer import self_description
 
 
 class MemoryRun(RunReader):
@@ -25,7 +26,7 @@ class MemoryRun(RunReader):
         if not hasattr(setup, "scenario") or not hasattr(setup, "grid"):
             raise TypeError("MemoryRun needs a built Setup (sojourn.build.build)")
         self.path = Path(f"<in memory: {setup.scenario.name}>")
-        self._attrs = layout.root_attributes(setup, backend)
+        self._attrs = {**layout.root_attributes(setup, backend), **self_description(setup)}
         self._x = np.array(setup.grid.x, dtype=float)
         self._V = np.array(setup.V, dtype=float)
         self._W = None if setup.W is None else np.array(setup.W, dtype=float)
@@ -38,6 +39,7 @@ class MemoryRun(RunReader):
         self._obs: dict = {name: [] for name in OBSERVABLES}
         self._samples: dict = {name: [] for name in ("t", "flux") + SAMPLES}
         self._analysis: Optional[dict] = None
+        self.resume_state: Optional[dict] = None   # the latest state (a snapshot or checkpoint)
 
     # -- the recorder ---------------------------------------------------------------------
     def snapshot(self, step: int, t: float, psi: np.ndarray, observables: dict,
@@ -49,6 +51,19 @@ class MemoryRun(RunReader):
         self._t.append(float(t))
         for name in OBSERVABLES:
             self._obs[name].append(float(observables[name]))
+        self._keep_samples(samples)
+        self.resume_state = {"step": int(step), "t": float(t), "psi": self._psi[-1],
+                             "raw_absorbed": tuple(map(float, raw_absorbed))}
+
+    def checkpoint(self, step: int, t: float, psi: np.ndarray, samples: dict,
+                   raw_absorbed: tuple[float, float]) -> None:
+        """Keep the samples since the last recording and the latest state
+        (`resume_state`: what `engine.loop.evolve` continues from)."""
+        self._keep_samples(samples)
+        self.resume_state = {"step": int(step), "t": float(t), "psi": np.array(psi, copy=True),
+                             "raw_absorbed": tuple(map(float, raw_absorbed))}
+
+    def _keep_samples(self, samples: dict) -> None:
         if len(samples["t"]):
             for name in ("t",) + SAMPLES:
                 self._samples[name].append(np.asarray(samples[name], dtype=float))

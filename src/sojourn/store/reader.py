@@ -110,12 +110,16 @@ class RunReader(ABC):
         return float(self.attrs["reference"])
 
     def scenario(self):
-        """The Scenario the run was made from (paths resolve as they did then);
-        parsed once and kept."""
+        """The Scenario the run was made from, its tables' data read from the
+        file itself (older files: paths resolve as they did then); parsed once
+        and kept."""
         if getattr(self, "_scenario", None) is None:
             attrs = self.attrs
             source = str(attrs.get("scenario_source") or Path(str(self.path)).with_suffix(".yaml"))
-            self._scenario = load_scenario_text(str(attrs["scenario"]), source, Path(source).parent)
+            # the self-contained text (tables inline) when the file has it: a table
+            # file changed since the run must not change what is read
+            text = attrs.get("scenario_resolved") or attrs["scenario"]
+            self._scenario = load_scenario_text(str(text), source, Path(source).parent)
         return self._scenario
 
     def psi_rows(self, indices) -> np.ndarray:

@@ -8,10 +8,17 @@ checkpoint of the full state go into the spare checkpoint slot, the file is
 flushed, and only then the commit counter (/snapshots attrs "committed") is
 written and flushed. A crash, a kill or a full disk therefore leaves a file
 whose committed part is consistent and resumable.
+
+A checkpoint between recordings (a stop request, or COMMIT_SECONDS of run
+without a recording) is a commit too: its samples are appended and its state
+goes into the spare slot, whose "snapshots" attribute is invalidated first and
+written last, so of two slots at the same commit count the one at the later
+step holds the newest complete state.
 """
 from __future__ import annotations
 
 import datetime as _dt
+import json
 import os
 import time
 from pathlib import Path
@@ -20,6 +27,7 @@ from typing import Optional
 import h5py
 import numpy as np
 
+from ..config.scenario import self_contained, table_digests
 from ..errors import RunFileError, one_line
 from . import layout
 from .layout import OBSERVABLES, SAMPLES, SLOTS
@@ -31,6 +39,17 @@ from .repair import clear_write_flags
 
 COMMIT_SECONDS = 2.0  # the most run time a crash can lose
 PSI_BLOCK = 16        # rows a dataset grows by if a run records more than planned
+
+
+def self_description(setup) -> dict:
+    """The root attributes that make a run independent of files outside it:
+    `scenario_resolved` (the scenario with every table's data inline, what
+    readers parse), `table_digests` (JSON list of each table file's SHA-256,
+    checked on resume) and `forced` (the guard findings the run was forced
+    past, '' for none; every later command flags them)."""
+    return {"scenario_resolved": self_contained(setup.scenario).text or "",
+            "table_digests": json.dumps(table_digests(setup.scenario)),
+            "forced": "; ".join(str(f) for f in setup.errors())}
 
 
 def _never_overwritten(final: Path) -> RunFileError:
@@ -100,6 +119,7 @@ class RunWriter:
             handle = create_exclusively(partial)
             try:
                 layout.create(handle, setup, backend, compress)
+                handle.attrs.update(self_description(setup))
                 handle.swmr_mode = True
             except Exception as exc:     # h5py reports a failed write as any of several
                 try:
@@ -116,9 +136,13 @@ class RunWriter:
 
     # -- resuming ------------------------------------------------------------------------
     @classmethod
-    def open_resume(cls, final: Path, scenario_text: str) -> tuple["RunWriter", dict]:
+    def open_resume(cls, final: Path, scenario_text: str,
+                    digests: Optional[list] = None) -> tuple["RunWriter", dict]:
         """Reopen NAME.h5.partial after a stop; returns the writer and the
-        checkpointed state (step, t, psi, raw_absorbed) to continue from."""
+        checkpointed state (step, t, psi, raw_absorbed) to continue from.
+        `digests` (config.scenario.table_digests of the scenario now) must
+        match those the run started with: a run is never continued on a
+        table file that changed."""
         final = Path(final)
         partial = partial_path(final)
         if regular_or_absent(partial) is None:
@@ -152,6 +176,11 @@ class RunWriter:
             if (handle.attrs.get("scenario") or "") != (scenario_text or ""):
                 raise RunFileError(f"{partial} was started from a different scenario text; "
                                    "it cannot be resumed with this one")
+            if digests is not None and "table_digests" in handle.attrs and \
+                    _text(handle.attrs["table_digests"]) != json.dumps(list(digests)):
+                raise RunFileError(f"{partial} was started with a table file whose content has "
+                                   "changed since (SHA-256 differs); it cannot be resumed: "
+                                   "restore the file, or start again with --overwrite")
             if committed.snapshots == 0:
                 raise RunFileError(f"{partial} holds no checkpoint yet; start again with --overwrite")
             state = _consistent_state(handle, committed, partial)
@@ -186,6 +215,12 @@ class RunWriter:
         if time.monotonic() - self._committed_at >= COMMIT_SECONDS:
             self.commit()
 
+    def checkpoint(self, step: int, t: float, psi: np.ndarray, samples: dict,
+                   raw_absorbed: tuple[float, float]) -> None:
+        """Commit a state between recordings (the loop's rule 2): the pending
+        snapshots, the samples since the last one and ψ at `step` in the spare slot."""
+        self.commit((int(step), float(t), psi, tuple(raw_absorbed)), samples)
+
     def _ensure_rows(self, rows: int) -> None:
         """Grow the snapshot datasets if a run records more snapshots than planned."""
         if rows > self._snap["t"].shape[0]:
@@ -193,10 +228,12 @@ class RunWriter:
             for dataset in (*self._snap.values(), *self._obs.values()):
                 dataset.resize(size, axis=0)
 
-    def commit(self) -> None:
+    def commit(self, state: Optional[tuple] = None, extra: Optional[dict] = None) -> None:
         """Write what is pending into its rows and the spare checkpoint slot,
-        flush, then advance the commit counter and flush again."""
-        if not self._pending:
+        flush, then advance the commit counter and flush again. `state` (step,
+        t, psi, raw absorbed) and its samples `extra` are a checkpoint between
+        recordings; without them the slot holds the last snapshot."""
+        if not self._pending and state is None:
             return
         try:
             pending = self._pending
@@ -207,6 +244,8 @@ class RunWriter:
             for name in OBSERVABLES:
                 self._obs[name][start:stop] = [item[2][name] for item in pending]
             batches = [item[3] for item in pending if len(item[3]["t"])]
+            if extra is not None and len(extra["t"]):
+                batches.append(extra)
             samples = self._samples + sum(len(b["t"]) for b in batches)
             if batches and samples > self._smp["t"].shape[0]:   # more than planned
                 for dataset in self._smp.values():
@@ -215,17 +254,23 @@ class RunWriter:
                 if batches:
                     self._smp[name][self._samples:samples] = np.concatenate(
                         [b[name] for b in batches])
-            step, t, _, _, raw = pending[-1]
+            step, t, psi, raw = state if state is not None else (
+                pending[-1][0], pending[-1][1], self._last_psi, pending[-1][4])
             spare = SLOTS[1 - SLOTS.index(self._slot)]
             slot = self._slots[spare]
-            slot["psi"][...] = self._last_psi
+            slot.attrs.modify("snapshots", np.int64(-1))   # not a state until written whole
+            self.h5.flush()
+            slot["psi"][...] = psi
             for key, value in (("step", np.int64(step)), ("t", float(t)),
-                               ("snapshots", np.int64(stop)), ("samples", np.int64(samples)),
+                               ("samples", np.int64(samples)),
                                ("absorbed_left", float(raw[0])), ("absorbed_right", float(raw[1]))):
                 slot.attrs.modify(key, value)
             self.h5.flush()
-            self._counter.attrs.modify("committed", np.int64(stop))   # the commit itself
+            slot.attrs.modify("snapshots", np.int64(stop))
             self.h5.flush()
+            if stop != self._rows:
+                self._counter.attrs.modify("committed", np.int64(stop))   # the commit itself
+                self.h5.flush()
         except WRITE_ERRORS as exc:
             self._fail(exc)
         self._rows, self._samples, self._slot = stop, samples, spare
@@ -297,10 +342,15 @@ class RunWriter:
         return self.final
 
 
+def _text(value) -> str:
+    return value.decode("utf-8", "replace") if isinstance(value, bytes) else str(value)
+
+
 def _consistent_state(f: h5py.File, committed: layout.Committed, path: Path) -> dict:
     """The checkpointed state of a partial file, after checking that its
     committed part is consistent (snapshots in time order at their steps, the
-    checkpoint at the last of them, samples up to it); refuses a file that is not."""
+    checkpoint at or after the last of them but before the next recording,
+    samples up to it); refuses a file that is not."""
     n, m = committed.snapshots, committed.samples
     slot = f["checkpoint"][committed.slot]
 
@@ -316,10 +366,13 @@ def _consistent_state(f: h5py.File, committed: layout.Committed, path: Path) -> 
         if not np.allclose(t, steps * dt, rtol=1e-12, atol=0) or \
                 not np.array_equal(f["observables/t"][:n], t):
             refuse("snapshot times do not match their steps")
-        if int(slot.attrs["step"]) != steps[-1] or float(slot.attrs["t"]) != t[-1]:
-            refuse("the checkpoint is not at the last committed snapshot")
+        at, at_t = int(slot.attrs["step"]), float(slot.attrs["t"])
+        if not (steps[-1] <= at < steps[-1] + int(f.attrs["record_steps"])) or \
+                not np.isclose(at_t, at * dt, rtol=1e-12, atol=0) or (at == steps[-1]
+                                                                     and at_t != t[-1]):
+            refuse("the checkpoint is not between the last committed snapshot and the next")
         ts = f["observables/samples/t"][:m]
-        if m < 1 or np.any(np.diff(ts) <= 0) or ts[-1] > t[-1]:
+        if m < 1 or np.any(np.diff(ts) <= 0) or ts[-1] > at_t:
             refuse("the samples are not in time order up to the checkpoint")
         psi = slot["psi"][...]
         last = f["snapshots/psi"][n - 1]
