@@ -15,10 +15,10 @@ from sojourn.workflows import run_in_memory
 ROOT = Path(__file__).resolve().parents[1]
 SCATTERING = ["configs/step.yaml", "configs/barrier.yaml", "configs/smooth_step.yaml",
               "configs/double_barrier.yaml", "configs/step_small.yaml",
-              "src/sojourn/data/demo.yaml"]
+              "configs/larmor_clock.yaml", "src/sojourn/data/demo.yaml"]
 SHIPPED = SCATTERING + ["configs/harmonic.yaml"]
 QUICK = ["src/sojourn/data/demo.yaml", "configs/step.yaml", "configs/step_small.yaml",
-         "configs/barrier.yaml"]     # a few seconds each here
+         "configs/barrier.yaml", "configs/larmor_clock.yaml"]     # a few seconds each here
 
 
 def test_every_shipped_scenario_is_listed():

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import os
 import re
 import signal
 import sys
@@ -202,3 +203,15 @@ def demo_scenario_path(folder: Path, overwrite: bool = False) -> Path:
     target = folder / "demo.yaml"
     target.write_text(text)
     return target
+
+
+def flag_forced(run) -> None:
+    """Every command that reads a run says so when the run was forced past its guards."""
+    from .store import RunFile
+    if isinstance(run, (str, os.PathLike)):
+        with RunFile(run) as rf:
+            forced = str(rf.attrs.get("forced") or "")
+    else:
+        forced = str(run.attrs.get("forced") or "")
+    if forced:
+        warn(f"warning: this run was forced past: {forced}")
