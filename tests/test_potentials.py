@@ -99,3 +99,16 @@ def test_expression_rejects_everything_but_arithmetic(formula):
 def test_expression_blow_up_is_harmless():
     with pytest.raises(expression.ExpressionError, match="not a finite number"):
         expression.parse("9**9**9")   # refused before any grid exists
+
+
+def test_large_grids_are_evaluated_in_chunks_with_the_same_values():
+    # the chunked sum equals the direct evaluation of each term (definition of the sum)
+    from sojourn.model import potentials
+    x = np.linspace(-50, 50, 3 * potentials.CHUNK + 17)
+    terms = [Expression(formula="0.3*exp(-x**2/8)*tanh(x)"), Step(at=0.3, height=0.7)]
+    pot = Potential(terms)
+    direct = terms[0].point(x) + terms[1].point(x)
+    assert np.array_equal(pot(x), direct)
+    dx = x[1] - x[0]
+    assert np.allclose(pot.on_grid(x, dx), terms[0].cell(x, dx) + terms[1].cell(x, dx), rtol=0,
+                       atol=1e-15)

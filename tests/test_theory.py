@@ -441,3 +441,21 @@ def test_physics_entry_points_check_their_arguments():
         th.synthesize(V, None, [0.0], [0.0], hbar=1.0, mass=1.0)
     with pytest.raises(TheoryError):
         th.synthesize(V, good, [0.0], [0.0], hbar=1.0, mass=0.0)
+
+
+def test_the_text_table_is_readable_and_the_machine_formats_complete():
+    # a terminal shows a few rounded rows; --json and --csv keep every energy
+    sc = loads("""\
+units: atomic
+grid: {span: [-300.0, 300.0], points: 4096}
+potential:
+  - barrier: {start: 0.0, end: 2.0, height: 1.0}
+packet: {center: -120.0, width: 20.0, energy: 0.5}
+evolve: {duration: 100.0}
+""", "b.yaml")
+    table = tables.theory_table(sc)
+    text = tables.format_table(table).splitlines()
+    body = [line for line in text if line[:1] == " " and line.strip()[:1].isdigit()]
+    assert len(body) == tables.DISPLAY_ROWS < len(table["energy"])
+    assert any("energies shown" in line for line in text)
+    assert len(tables.table_csv(table).strip().splitlines()) >= len(table["energy"])

@@ -20,6 +20,8 @@ from .terms import (TAIL, Barrier, DeltaLike, Gaussian, Harmonic, Ramp, Sech2, S
 __all__ = ["TERMS", "Potential", "Shape", "Term", "TAIL", "Step", "Barrier", "Well", "Ramp",
            "DeltaLike", "Gaussian", "SmoothStep", "Sech2", "Harmonic", "Table", "Expression"]
 
+CHUNK = 1 << 18   # points evaluated at a time (a formula holds ~depth arrays of this size)
+
 TERMS: dict[str, type[Term]] = {
     cls.kind: cls
     for cls in (Step, Barrier, Well, Gaussian, SmoothStep, Sech2, DeltaLike, Ramp,
@@ -47,17 +49,21 @@ class Potential:
 
     def __call__(self, x) -> np.ndarray:
         """Exact values at points x (zero-width deltas excluded)."""
-        x = np.asarray(x, dtype=float)
-        total = np.zeros_like(x)
-        for term in self.terms:
-            total = total + term.point(x, self.mass)
-        return total
+        return self._summed(np.asarray(x, dtype=float), lambda t, part: t.point(part, self.mass))
 
     def on_grid(self, x: np.ndarray, dx: float) -> np.ndarray:
         """Grid values: cell averages for terms with jumps, point values otherwise."""
-        total = np.zeros_like(np.asarray(x, dtype=float))
-        for term in self.terms:
-            total = total + term.cell(x, dx, self.mass)
+        return self._summed(np.asarray(x, dtype=float), lambda t, part: t.cell(part, dx, self.mass))
+
+    def _summed(self, x: np.ndarray, value) -> np.ndarray:
+        """Σ terms, evaluated in chunks of CHUNK points, so that a formula's
+        intermediate arrays never scale with a large grid."""
+        total = np.zeros_like(x)
+        flat, out = x.reshape(-1), total.reshape(-1)
+        for start in range(0, flat.size, CHUNK):
+            part = flat[start:start + CHUNK]
+            for term in self.terms:
+                out[start:start + CHUNK] += value(term, part)
         return total
 
     @property

@@ -176,6 +176,15 @@ def table_csv(table: dict) -> str:
     return "\n".join(lines) + "\n"
 
 
+DISPLAY_ROWS = 21   # rows a terminal table shows (the first, the last and evenly between)
+
+
+def _display_rows(n: int) -> list:
+    if n <= DISPLAY_ROWS:
+        return list(range(n))
+    return sorted({round(i * (n - 1) / (DISPLAY_ROWS - 1)) for i in range(DISPLAY_ROWS)})
+
+
 def format_table(table: dict) -> str:
     """A readable plain-text table with the packet summary below it."""
     u = table["units"]
@@ -185,14 +194,19 @@ def format_table(table: dict) -> str:
     if len(cols) > len(COLUMNS):
         heads += [f"{n} [{u['time']}]" for n in ("tauy_R", "tauz_R", "tauy_T", "tauz_T")]
     rows = [heads]
-    for row in zip(*(table[c] for c in cols)):
-        rows.append(["-" if v is None else f"{v:.6g}" for v in row])
+    all_rows = list(zip(*(table[c] for c in cols)))
+    shown = _display_rows(len(all_rows))
+    for i in shown:
+        rows.append(["-" if v is None else f"{v:.5g}" for v in all_rows[i]])
     width = [max(len(r[i]) for r in rows) for i in range(len(heads))]
     text = [f"# {table.get('scenario', '')}",
             f"# r referenced at x_r = {table['reference_points']['x_r']:g} {u['length']}, "
             f"t at x_t = {table['reference_points']['x_t']:g} {u['length']} "
             f"(incident from the {'left' if table['direction'] == 'right' else 'right'})"]
     text += ["  ".join(c.rjust(w) for c, w in zip(r, width)) for r in rows]
+    if len(shown) < len(all_rows):
+        text.append(f"# {len(shown)} of {len(all_rows)} energies shown, rounded; --json or --csv "
+                    "give every energy at full precision")
     pk = table.get("packet")
     if pk:
         def fmt(v):
