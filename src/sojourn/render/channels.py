@@ -23,7 +23,7 @@ import numpy as np
 from ..errors import SojournError
 from ..theory.scattering import scatter
 from .overlays import direction
-from .scan import Ruler, Scan
+from .scan import Ruler, Scan, saved_ruler
 
 BAND = 6.0          # σ_k either side of k₀ that the reference integrates over
 THIN = 0.02         # features narrower than this share of the x-range get a true-width panel
@@ -97,15 +97,9 @@ def transmission_ruler(scan: Scan, facts) -> Optional[Ruler]:
     (None when no transmitted channel lasts)."""
     if not scan.has_transmission:
         return None
-    part = (facts.analysis or {}).get("transmission") if isinstance(facts.analysis, dict) \
-        else None
-    centroid = ((part or {}).get("measured") or {}).get("centroid") if isinstance(part, dict) \
-        else None
-    if isinstance(centroid, dict) and isinstance(centroid.get("delay"), (int, float)):
-        predicted = centroid.get("predicted")
-        return Ruler(float(centroid["delay"]), "saved analysis",
-                     float(predicted) if isinstance(predicted, (int, float)) else None,
-                     "packet average")
+    saved = saved_ruler(facts, "transmission")
+    if saved is not None:
+        return saved
     k, q, _, _ = _band(facts)
     q0 = float(np.interp(abs(facts.packet.k0), k, q))
     i = len(scan.times) - 1

@@ -113,17 +113,26 @@ class Ruler:
         return text
 
 
+def saved_ruler(facts: RunFacts, channel: str) -> Optional[Ruler]:
+    """The channel's centroid delay and its prediction from the saved analysis
+    (`sojourn delay --save`), or None when none was saved."""
+    part = (facts.analysis or {}).get(channel) if isinstance(facts.analysis, dict) else None
+    centroid = ((part or {}).get("measured") or {}).get("centroid") if isinstance(part, dict) \
+        else None
+    if not (isinstance(centroid, dict) and isinstance(centroid.get("delay"), (int, float))):
+        return None
+    predicted = centroid.get("predicted")
+    return Ruler(float(centroid["delay"]), "saved analysis",
+                 float(predicted) if isinstance(predicted, (int, float)) else None,
+                 "packet average")
+
+
 def reflection_ruler(scan: Scan, facts: RunFacts) -> Optional[Ruler]:
     """The centroid delay from the saved analysis (`sojourn delay --save`) with its
     prediction, else from the run's centroids beside the phase delay at E₀."""
-    part = (facts.analysis or {}).get("reflection") if isinstance(facts.analysis, dict) else None
-    centroid = ((part or {}).get("measured") or {}).get("centroid") if isinstance(part, dict) \
-        else None
-    if isinstance(centroid, dict) and isinstance(centroid.get("delay"), (int, float)):
-        predicted = centroid.get("predicted")
-        return Ruler(float(centroid["delay"]), "saved analysis",
-                     float(predicted) if isinstance(predicted, (int, float)) else None,
-                     "packet average")
+    saved = saved_ruler(facts, "reflection")
+    if saved is not None:
+        return saved
     tau = run_delay(scan, facts)
     if tau is None:
         return None
