@@ -459,3 +459,15 @@ evolve: {duration: 100.0}
     assert len(body) == tables.DISPLAY_ROWS < len(table["energy"])
     assert any("energies shown" in line for line in text)
     assert len(tables.table_csv(table).strip().splitlines()) >= len(table["energy"])
+
+
+def test_a_table_potential_gets_its_predictions_quickly():
+    # a table that is a step up to a 0.001-wide ramp: its phase delay at E₀ = V₀/2 is
+    # the step's ħ/√(E(V₀−E)) = 2 (Landau & Lifshitz §25; closed_forms.step_delay)
+    # up to the ramp's width, and the packet averages exist (they once failed after 40 s)
+    pot = P.Potential([P.Table(data=[(-1000, 0), (0, 0), (0.001, 1), (1000, 1)])],
+                      span=(-300.0, 300.0))
+    info = describe(PacketSpec(center=-100.0, width=10.0, energy=0.5), 1.0, 1.0, 0.0)
+    pred = th.packet_prediction(pot, info, hbar=1.0, mass=1.0, reference=0.0, region=(0.0, 250.0))
+    assert pred.reflection.wigner_delay == pytest.approx(float(cf.step_delay(0.5, 1.0)), rel=2e-3)
+    assert pred.reflection.probability == pytest.approx(1.0, abs=1e-12)

@@ -170,12 +170,17 @@ def _segment(a: float, b: float, lev: int, at_a: Optional[float], at_b: Optional
     return k, E, w * 2 * u
 
 
+HOLE_TOL = 1e-6
+
+
 def _reflection_holes(potential, hbar, reference, direction, E_of, k, weight):
     """Energies inside the band where R(k) has a deep interior minimum (a zero of
     r, e.g. qa = nπ above a barrier, or a transmission resonance): there the
     reflected spectral phase is ill-conditioned."""
+    # finding a dip needs R to a few digits, not the averages' 1e-10 (a turning point
+    # inside a sliced piece converges slowly)
     sc = scatter(potential, E_of(k), hbar=hbar, x_r=reference, direction=direction,
-                 dwell=False)
+                 dwell=False, tol=HOLE_TOL)
     R = sc.R
     inner = np.nonzero((R[1:-1] < R[:-2]) & (R[1:-1] < R[2:]))[0] + 1
     deep = [i for i in inner if R[i] < HOLE_DEPTH * R.max() and weight[i] > HOLE_WEIGHT]
