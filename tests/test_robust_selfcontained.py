@@ -56,11 +56,12 @@ def test_editing_the_table_after_a_run_changes_nothing_read_from_it(tmp_path):
     assert load(tmp_path / "s.yaml").terms[0].levels() == (0.0, 3.0)
 
 
-@pytest.mark.slow
 def test_editing_the_table_after_a_run_changes_no_delay_prediction(tmp_path, capsys):
-    # slow: the layered theory of a table takes most of a minute here
     out = run_then_edit(tmp_path)
     before = delay_json(out, capsys)
+    predicted = [m["predicted"] for ch in ("reflection", "transmission") if before.get(ch)
+                 for m in before[ch]["measured"].values()]
+    assert predicted and all(v is not None for v in predicted)   # the comparison is not vacuous
     (tmp_path / "pot.csv").write_text(HIGHER)
     assert delay_json(out, capsys) == before
 
