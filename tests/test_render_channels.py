@@ -18,7 +18,7 @@ from sojourn.sweep.table import key_label
 from sojourn.theory.averages import packet_prediction
 from sojourn.theory.tables import plot_theory, theory_table
 
-from test_render_measure import make, near_colour, pixel_extent
+from test_render_measure import assert_ruler_drawn, make, near_colour, pixel_extent
 
 # a rectangular barrier met below its top: T ≈ 0.07 at E₀ = 0.5, V₀ = 1, a = 2 (ħ = m = 1),
 # so both channels are well populated
@@ -59,13 +59,7 @@ def test_transmitted_ruler_is_the_packet_averaged_delay_and_spans_40_pixels(barr
                              reference=facts.reference)
     assert ruler.delay == pytest.approx(pred.transmission.centroid_delay, rel=0.03)
     panel = next(p for p in frame.panels if getattr(p, "channel", "") == "transmission")
-    ends = pixel_extent(panel.ruler_line)
-    length = abs(ends[1, 0] - ends[0, 0])
-    assert length >= 40
-    row = image.shape[0] - int(round(ends[0, 1]))
-    lit = near_colour(image[row - 1: row + 2], frame.look.measurement).any(axis=0)
-    lo, hi = sorted(int(round(v)) for v in ends[:, 0])
-    assert lit[lo + 2: hi - 2].mean() > 0.9
+    assert_ruler_drawn(panel.ruler_line, image, frame.look.measurement)
 
 
 def test_transmitted_reference_packet_carries_T_and_moves_as_its_centroid(barrier_run):

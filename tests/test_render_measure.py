@@ -72,6 +72,17 @@ def pixel_extent(line) -> np.ndarray:
     return line.axes.transData.transform(np.column_stack(line.get_data()))
 
 
+def assert_ruler_drawn(line, image, colour) -> None:
+    """The ruler spans ≥ 40 px and is really drawn: a run of its colour that
+    long on its row of the rendered frame."""
+    ends = pixel_extent(line)
+    assert abs(ends[1, 0] - ends[0, 0]) >= 40
+    row = image.shape[0] - int(round(ends[0, 1]))
+    lit = near_colour(image[row - 1: row + 2], colour).any(axis=0)
+    lo, hi = sorted(int(round(v)) for v in ends[:, 0])
+    assert lit[lo + 2: hi - 2].mean() > 0.9
+
+
 def near_colour(image, colour, tol=40) -> np.ndarray:
     rgb = np.array(to_rgb(colour)) * 255
     return np.all(np.abs(image[..., :3].astype(float) - rgb) <= tol, axis=-1)
@@ -89,14 +100,7 @@ def test_movie_ruler_spans_at_least_40_pixels_and_measures_the_step_delay(step_r
     frame, image = movie_frame(step_run)
     assert frame.ruler.source == "run centroids"
     assert frame.ruler.delay == pytest.approx(2.0, rel=0.05)
-    ends = pixel_extent(frame.ruler_line)
-    length = abs(ends[1, 0] - ends[0, 0])
-    assert length >= 40
-    # and it is really drawn: a run of the measurement colour that long on its row
-    row = image.shape[0] - int(round(ends[0, 1]))
-    lit = near_colour(image[row - 1: row + 2], frame.look.measurement).any(axis=0)
-    lo, hi = sorted(int(round(v)) for v in ends[:, 0])
-    assert lit[lo + 2: hi - 2].mean() > 0.9
+    assert_ruler_drawn(frame.ruler_line, image, frame.look.measurement)
 
 
 def test_figure_ruler_at_1080p_is_the_delay_and_spans_40_pixels(tmp_path):

@@ -17,10 +17,10 @@ import numpy as np
 
 from ..errors import MeasureError, SojournError
 from ..model import packets
-from ..theory.averages import packet_prediction
+from ..theory.averages import K_SPAN_AVERAGES, packet_prediction
 
 SEPARATION = 6.0        # widths between the outgoing packet and the potential / box edge
-K_SPAN = 8.0            # the packet's band: k₀ ± 8σ_k (as the theory's averages)
+K_SPAN = K_SPAN_AVERAGES  # the packet's band: k₀ ± 8σ_k, as the theory's averages
 
 
 @dataclass

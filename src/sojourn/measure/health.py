@@ -10,10 +10,10 @@ from typing import Optional
 
 import numpy as np
 
+from ..theory.averages import ABOVE_TOP_WARN, share_above_top as theory_share
 from .frame import K_SPAN, ForwardRun
 from .report import ChannelReport
 
-ABOVE_TOP_WARN = 1e-3   # share of the packet above the barrier top that calls for a warning
 OUT_OF_BAND_WARN = 1e-6  # probability outside the packet's k-band that calls for a warning
 LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
 START_OVERLAP = 1e-6    # probability beyond the reference point at t = 0
@@ -59,12 +59,8 @@ def leakage(run: ForwardRun, stats: dict, prediction) -> Optional[str]:
 def share_above_top(run: ForwardRun) -> tuple[float, float]:
     """(share of |ψ̃₀|² above the barrier top, the top); 1 without a top above
     the incidence level."""
-    info, hbar, m = run.info, run.hbar, run.mass
-    top = float(np.max(run.V))
-    if top <= info.level:
-        return 1.0, top
-    k_top = math.sqrt(2 * m * (top - info.level)) / hbar
-    return 0.5 * math.erfc((k_top - info.k0) / (math.sqrt(2) * info.sigma_k)), top
+    info, top = run.info, float(np.max(run.V))
+    return theory_share(top, info.level, info.k0, info.sigma_k, run.hbar, run.mass), top
 
 
 def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelReport],
