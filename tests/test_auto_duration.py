@@ -46,7 +46,8 @@ def test_auto_duration_is_resolved_and_recorded_every_hundredth():
     # record.every defaults to duration/100 (to the nearest step)
     assert s.record_steps * s.dt == pytest.approx(s.duration / 100, abs=s.dt / 2)
     # the slow end of the band, k₀ − 4σ_k, has travelled to the potential and back past
-    # the detector: free motion at v = ħk/m (ħ = m = 1) sets a lower bound
+    # the detector: free motion at v = ħk/m (ħ = m = 1; common practice, no source)
+    # sets a lower bound
     v_slow = math.sqrt(2 * 0.5) - 4 / (2 * 20.0)
     detector = s.detectors[0]
     assert s.duration > (150.0 + abs(detector)) / v_slow
@@ -111,7 +112,9 @@ def _assert_trusted(rows, rel):
         for method in ("centroid", "arrival", "spectral"):
             result = r.measured.get(method)
             assert result is not None, (energy, method)
-            # each delay beside its own packet prediction (stationary theory)
+            # each delay beside its own packet prediction: the stationary theory, itself
+            # checked against the step's closed form τ = ħ/√(E(V₀−E)) (Landau & Lifshitz,
+            # Quantum Mechanics §25; tests/physics/test_theory_published.py)
             assert result.delay == pytest.approx(result.predicted, rel=rel), (energy, method)
 
 
