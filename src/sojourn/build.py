@@ -61,14 +61,34 @@ class Setup:
         """Δt·(E_max + V_max - V_min)/ħ: must stay below 2π, best below π."""
         return self.dt * (self.grid.kinetic_max(self.hbar, self.mass) + np.ptp(self.V)) / self.hbar
 
+    @property
+    def state_axes(self) -> tuple[tuple[str, np.ndarray], ...]:
+        """The named axes of ψ, outermost first: a leading "component" axis
+        when V has one (a spinor: one potential per component), then the grid's."""
+        lead = V_lead(self.V, self.grid)
+        return ((("component", np.arange(lead[0], dtype=float)),) if lead else ()) + self.grid.axes
+
+    @property
+    def state_shape(self) -> tuple[int, ...]:
+        return tuple(len(values) for _, values in self.state_axes)
+
     def psi0(self) -> np.ndarray:
-        return packets.on_grid(self.grid, self.packet)
+        psi = packets.on_grid(self.grid, self.packet)
+        lead = V_lead(self.V, self.grid)
+        if lead:   # each component carries the packet's amplitude / √C (one spin direction)
+            psi = np.broadcast_to(psi / np.sqrt(lead[0]), lead + psi.shape).copy()
+        return psi
 
     def errors(self) -> list:
         return [f for f in self.findings if f.level == "error"]
 
     def warnings(self) -> list:
         return [f for f in self.findings if f.level == "warning"]
+
+
+def V_lead(V, grid) -> tuple[int, ...]:
+    """The leading component axis of V, () for a scalar potential on the grid."""
+    return tuple(np.shape(V)[:1]) if np.ndim(V) == len(grid.shape) + 1 else ()
 
 
 PASSAGE_GAP = 4.0      # widths between incident and outgoing passages at a detector (as measure)

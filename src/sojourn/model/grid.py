@@ -41,6 +41,12 @@ class Grid:
     def x(self) -> np.ndarray:
         return self.left + self.dx * np.arange(self.points)
 
+    @property
+    def axes(self) -> tuple[tuple[str, np.ndarray], ...]:
+        """The named coordinate axes of an array on the grid, outermost first
+        (the run file's dimensions)."""
+        return (("x", self.x),)
+
     @cached_property
     def k(self) -> np.ndarray:
         """Wavenumbers in FFT order."""

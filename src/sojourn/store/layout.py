@@ -7,9 +7,13 @@ every reader checks on open (README.md describes it for people).
     /units, /packet, /provenance   groups whose attributes are the unit system, the packet's
                        numbers (PACKET_KEYS) and where the run was made (STRUCTURED)
     /grid/x            (N,) float, strictly increasing
-    /potential/x, V    (N,) float; /potential/absorber (N,) float when there is one
-    /snapshots/x, t, step, psi  (N,), (S,), (S,), (S, N) complex — S rows allocated at the
-                       start; attrs "committed": how many rows hold committed snapshots
+    /potential/x, V    (N,) float, V on ψ's axes (below); /potential/absorber (N,) float
+                       when there is one
+    /snapshots/x, t, step, psi  (N,), (S,), (S,), (S, *A) complex — S rows allocated at the
+                       start; attrs "committed": how many rows hold committed snapshots, and
+                       "axes": ψ's axes after t, space-separated names, outermost first
+                       ("x"; "component x" for a spinor); each is a scale in /snapshots and
+                       in /potential, x the last (N points)
     /observables/NAME  (S,) float for NAME in ("t",) + OBSERVABLES; attrs region, reference
     /observables/samples/t, NAME, flux, detector   (M,), (M,), (M, D), (D,): the samples
                        between snapshots (M rows allocated at the start); attrs detectors
@@ -22,7 +26,7 @@ detector; x is copied into /potential and /snapshots), so that
 named coordinates; every dataset has `units` (UDUNITS-style, see `udunits`)
 and `long_name` attributes. ψ is HDF5's compound complex (fields r, i), which
 h5netcdf reads as complex. Rows past the commit counters hold the fill value.
-    /checkpoint/a, /checkpoint/b   two slots, each psi (N,) complex and attrs
+    /checkpoint/a, /checkpoint/b   two slots, each psi (*A) complex and attrs
                        step, t, snapshots, samples, absorbed_left, absorbed_right
 
 Every dataset is allocated at its final size when the run starts (its fill
@@ -75,11 +79,9 @@ PACKET_KEYS = ("center", "width", "k0", "sigma_k", "energy", "mean_energy", "gro
 DATASETS = {
     "grid/x": ("f", ("N",)), "potential/V": ("f", ("N",)),
     "snapshots/t": ("f", ("S",)), "snapshots/step": ("i", ("S",)),
-    "snapshots/psi": ("c", ("S", "N")),
     **{f"observables/{name}": ("f", ("S",)) for name in ("t",) + OBSERVABLES},
     **{f"observables/samples/{name}": ("f", ("M",)) for name in ("t",) + SAMPLES},
     "observables/samples/flux": ("f", ("M", "D")),
-    **{f"checkpoint/{slot}/psi": ("c", ("N",)) for slot in SLOTS},
     "potential/x": ("f", ("N",)), "snapshots/x": ("f", ("N",)),
     "observables/samples/detector": ("f", ("D",)),
 }
@@ -115,6 +117,13 @@ def root_attributes(setup, backend: str) -> dict:
     }
 
 
+def state_datasets(axes: tuple[str, ...]) -> dict:
+    """The datasets on ψ's axes (names, outermost first; x is the last, N points)."""
+    symbols = tuple("N" if name == "x" else name for name in axes)
+    return {"snapshots/psi": ("c", ("S",) + symbols), "potential/V": ("f", symbols),
+            **{f"checkpoint/{slot}/psi": ("c", symbols) for slot in SLOTS}}
+
+
 def psi_dtype(setup) -> str:
     return "c8" if setup.scenario.evolve.precision == "single" else "c16"
 
@@ -144,9 +153,10 @@ def allocated_bytes(setup, compress: bool) -> int:
     """The bytes `create` allocates (ψ rows not counted when compressed: they
     are allocated as they are written)."""
     n, rows, item = setup.grid.points, setup.snapshots, np.dtype(psi_dtype(setup)).itemsize
+    state = int(np.prod(setup.state_shape))
     columns = len(SAMPLES) + 1 + max(len(setup.detectors), 1)
-    return ((0 if compress else rows * n * item) + rows * (len(OBSERVABLES) + 3) * 8
-            + sample_rows(setup) * columns * 8 + 3 * n * 8 + 2 * n * item)
+    return ((0 if compress else rows * state * item) + rows * (len(OBSERVABLES) + 3) * 8
+            + sample_rows(setup) * columns * 8 + 3 * n * 8 + state * 8 + 2 * state * item)
 
 
 def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
@@ -156,27 +166,31 @@ def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
     attrs = root_attributes(setup, backend)
     f.attrs.update({k: v for k, v in attrs.items() if k not in STRUCTURED})
     write_structured(f, attrs)
-    n, rows = setup.grid.points, setup.snapshots
-    x = _scale(f.create_group("grid"), "x", setup.grid.x, u)
-    x.attrs["dx"] = setup.grid.dx
+    rows, state, names = setup.snapshots, setup.state_shape, [a for a, _ in setup.state_axes]
+    grid = f.create_group("grid")
+    for name, values in setup.grid.axes:
+        _scale(grid, name, values, u)
+    grid["x"].attrs["dx"] = setup.grid.dx
     pot = f.create_group("potential")
-    px = _scale(pot, "x", setup.grid.x, u)
-    _attach(pot.create_dataset("V", data=setup.V), u, px)
+    paxes = [_scale(pot, name, values, u) for name, values in setup.state_axes]
+    _attach(pot.create_dataset("V", data=setup.V), u, *paxes)
     pot.attrs["description"] = setup.potential.describe()
     if setup.W is not None:
-        _attach(pot.create_dataset("absorber", data=setup.W), u, px)
+        _attach(pot.create_dataset("absorber", data=setup.W), u,
+                *paxes[len(paxes) - np.ndim(setup.W):])
     snaps = f.create_group("snapshots")
-    sx = _scale(snaps, "x", setup.grid.x, u)
+    saxes = [_scale(snaps, name, values, u) for name, values in setup.state_axes]
     t = _rows(snaps, "t", rows)
     _label(t, u)
     t.make_scale("t")
     _attach(_rows(snaps, "step", rows, dtype="i8"), u, t)
     psi = snaps.create_dataset(
-        "psi", shape=(rows, n), maxshape=(None, n), chunks=(1, n), dtype=psi_dtype(setup),
-        fletcher32=True, dcpl=_early(),
+        "psi", shape=(rows, *state), maxshape=(None, *state), chunks=(1, *state),
+        dtype=psi_dtype(setup), fletcher32=True, dcpl=_early(),
         **({"compression": "gzip", "compression_opts": 1, "shuffle": True} if compress else {}))
-    _attach(psi, u, t, sx)
+    _attach(psi, u, t, *saxes)
     snaps.attrs["committed"] = np.int64(0)
+    snaps.attrs["axes"] = " ".join(names)
     obs = f.create_group("observables")
     ot = _rows(obs, "t", rows)
     _label(ot, u)
@@ -200,7 +214,7 @@ def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
     ck = f.create_group("checkpoint")
     for slot in SLOTS:
         g = ck.create_group(slot)
-        g.create_dataset("psi", shape=(n,), dtype=psi_dtype(setup), fletcher32=True, chunks=(n,))
+        g.create_dataset("psi", shape=state, dtype=psi_dtype(setup), fletcher32=True, chunks=state)
         for key, kind in SLOT_ATTRS.items():
             g.attrs[key] = np.int64(-1) if kind == "int" else -1.0
 
@@ -256,9 +270,23 @@ def _datasets(version: int) -> dict:
     out = {k: v for k, v in DATASETS.items() if k not in SCALES}
     if version >= 2:
         return out
-    out = {k: v for k, v in out.items() if not k.startswith("checkpoint/")}
-    out["snapshots/psi"] = ("c", ("P", "N"))
-    return out
+    return {k: v for k, v in out.items() if not k.startswith("checkpoint/")}
+
+
+def state_axes(f: h5py.File, path, version: int) -> tuple[str, ...]:
+    """ψ's axes after t as the file names them ("x" before they were named)."""
+    text = f["snapshots"].attrs.get("axes", "x") if isinstance(f.get("snapshots"), h5py.Group) \
+        else "x"
+    text = text.decode("utf-8", "replace") if isinstance(text, bytes) else text
+    names = tuple(str(text).split())
+    if not names or names[-1] != "x" or len(set(names)) != len(names) or any(
+            not name.isidentifier() or name in ("t", "step", "psi", "V", "absorber", "S", "N")
+            for name in names):
+        _fail(path, f"attribute /snapshots/axes {text!r} does not name ψ's axes ending in x")
+    extra = names[:-1]
+    if extra and version < 3:
+        _fail(path, "ψ with more axes than x needs format 3")
+    return names
 
 
 def root_kinds(version: int) -> dict:
@@ -304,8 +332,16 @@ def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
         if not isinstance(packet.get(key), (int, float)) or not np.isfinite(packet[key]):
             _fail(path, f"attribute /packet has no finite '{key}'")
     sizes: dict = {}
-    for name, (kind, shape) in {**_datasets(version),
-                                **{k: v for k, v in OPTIONAL.items() if k in f}}.items():
+    axes = state_axes(f, path, version)
+    wanted = {**_datasets(version), **state_datasets(axes),
+              **{k: v for k, v in OPTIONAL.items() if k in f}}
+    if version < 2:   # version 1 grew ψ's rows as it went and had one checkpoint state
+        wanted = {k: v for k, v in wanted.items() if not k.startswith("checkpoint/")}
+        wanted["snapshots/psi"] = ("c", ("P", "N"))
+    if version >= 3:
+        wanted.update({f"{group}/{name}": ("f", (name,)) for name in axes[:-1]
+                       for group in ("snapshots", "potential")})
+    for name, (kind, shape) in wanted.items():
         node = f.get(name)
         if not isinstance(node, h5py.Dataset):
             _fail(path, f"dataset /{name} is missing")

@@ -29,6 +29,7 @@ class MemoryRun(RunReader):
         self._attrs = {**layout.root_attributes(setup, backend), **self_description(setup)}
         self._x = np.array(setup.grid.x, dtype=float)
         self._V = np.array(setup.V, dtype=float)
+        self._axes = tuple(name for name, _ in setup.state_axes)
         self._W = None if setup.W is None else np.array(setup.W, dtype=float)
         self._dtype = np.dtype(layout.psi_dtype(setup))
         self._region = tuple(map(float, setup.region)) if setup.region else None
@@ -95,6 +96,10 @@ class MemoryRun(RunReader):
     @property
     def V(self) -> np.ndarray:
         return self._V.copy()
+
+    @property
+    def axes(self) -> tuple[str, ...]:
+        return self._axes
 
     @property
     def absorber(self) -> Optional[np.ndarray]:

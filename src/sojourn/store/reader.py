@@ -7,9 +7,12 @@ store.memory.MemoryRun are the two):
    as numbers; "mass" in electron masses, "mass_internal" in the units' energy·time²/
    length²) and the layout.STRUCTURED entries (units, packet, provenance) as JSON
    text; `status` — running, interrupted, failed or complete.
-2. `x`, `V` — the grid and potential as (N,) float arrays; `absorber` — (N,) or None.
+2. `x`, `V` — the grid (N,) and the potential on ψ's axes (N,) — (C, N) for a
+   spinor, one potential per component; `absorber` — (N,) or None; `axes` — the
+   names of ψ's axes after t, outermost first, x last (("x",) for a scalar run).
 3. `len(reader)` — the committed snapshots; `times` — their (len,) times;
-   `psi(i)` — snapshot i as an (N,) complex array (negative i counts from the end);
+   `psi(i)` — snapshot i as a complex array on ψ's axes (`axes`; (N,) for a scalar
+   run in one dimension; negative i counts from the end);
    nothing past the commit is ever returned.
 4. `observables()` — {"t", *layout.OBSERVABLES: (len,) arrays};
    `samples()` — {"t", "flux" (M, D), *layout.SAMPLES: (M,) arrays, "detectors"}.
@@ -96,6 +99,10 @@ class RunReader(ABC):
 
     def __exit__(self, *exc):
         self.close()
+
+    @property
+    def axes(self) -> tuple[str, ...]:
+        return ("x",)
 
     @property
     def units(self) -> dict:
@@ -240,6 +247,10 @@ class RunFile(RunReader):
         return self._read("grid/x")
 
     @property
+    def axes(self) -> tuple[str, ...]:
+        return layout.state_axes(self.h5, self.path, int(self.attrs["format_version"]))
+
+    @property
     def V(self) -> np.ndarray:
         return self._read("potential/V")
 
@@ -269,7 +280,7 @@ class RunFile(RunReader):
         rows = np.asarray([self._index(int(i)) for i in indices], dtype=np.int64)
         dataset = self.h5["snapshots/psi"]
         if len(rows) == 0:
-            return np.zeros((0, dataset.shape[1]), dataset.dtype)
+            return np.zeros((0, *dataset.shape[1:]), dataset.dtype)
         step = int(rows[1] - rows[0]) if len(rows) > 1 else 1
         try:
             if step != 0 and np.array_equal(np.diff(rows), np.full(len(rows) - 1, step)):

@@ -80,7 +80,7 @@ class RunWriter:
         self._samples = committed.samples
         psi = self._snap["psi"]
         # compressed rows claim their space as they are written; others have it already
-        self._growth = psi.dtype.itemsize * psi.shape[1] + 4096 if psi.compression else 0
+        self._growth = psi.dtype.itemsize * int(np.prod(psi.shape[1:])) + 4096 if psi.compression else 0
         self._pending: list = []   # (step, t, observables, samples, raw absorbed)
         self._last_psi = None
         self._committed_at = time.monotonic()
