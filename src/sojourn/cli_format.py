@@ -83,6 +83,11 @@ def format_delay_report(report, moves=None) -> list:
     if d.get("measured") is not None:
         lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "
                       f"{num(d['measured'])}, packet-averaged Büttiker {num(d['predicted'])}"]
+        if d.get("relative") is not None:
+            allowed = d.get("grid_error")
+            lines[-1] += (f", relative {d['relative']:+.2e}" + (
+                f" (the grid's resolution of the evanescent tail allows about ±{allowed:.1e})"
+                if allowed is not None and allowed >= 1e-3 else ""))
     if moves:
         lines += ["", "convergence (how far each delay moves):"]
         lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "

@@ -10,6 +10,7 @@ from typing import Optional
 import numpy as np
 
 from ..errors import MeasureError
+from ..guards import band_floor, dwell_grid_error
 from ..model.packets import PacketInfo
 from ..store import RunFile
 from . import health
@@ -17,6 +18,7 @@ from .frame import ForwardRun, predictions, snapshot_stats
 from .methods import METHODS, channel_context
 from .report import ChannelReport, DelayReport
 
+DWELL_WARN = 3.0   # a dwell deviation this many times the grid's allowance is flagged
 READER = ("x", "V", "absorber", "times", "psi", "snapshots", "observables", "samples", "packet",
           "attrs", "reference", "region", "scenario", "status", "units", "path")
 
@@ -88,6 +90,12 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
             if leak:
                 warnings.append(leak)
     dwell = dwell_time(run, prediction)
+    if dwell.get("relative") is not None and abs(dwell["relative"]) > DWELL_WARN * max(
+            dwell["grid_error"] or 0.0, 1e-3):
+        warnings.append(f"the dwell time deviates from its prediction by {dwell['relative']:+.1e} "
+                        f"(relative), more than {DWELL_WARN:g}× what the grid allows "
+                        f"(±{max(dwell['grid_error'] or 0.0, 1e-3):.1e}): was the packet still "
+                        "in the region when the run ended, or there at its start?")
     warnings += health.after_measuring(run, stats, channels["reflection"],
                                        channels["transmission"])
     return DelayReport(path, units, channels["reflection"], channels["transmission"], dwell,
@@ -132,6 +140,11 @@ def dwell_time(run: ForwardRun, prediction) -> dict:
     incident = float(run.observables["norm"][0])
     value = float(np.trapezoid(s["P_region"], s["t"]) / incident)
     predicted = prediction.dwell if prediction is not None else None
+    inside = run.V if run.W is None else run.V[run.W == 0]
+    grid_error = dwell_grid_error(inside, run.dx, band_floor(run.info, run.hbar, run.mass),
+                                  run.hbar, run.mass)
     return {"measured": value, "predicted": predicted,
             "deviation": None if predicted is None else value - predicted,
+            "relative": None if not predicted else (value - predicted) / abs(predicted),
+            "grid_error": grid_error,
             "region": [float(region[0]), float(region[1])]}
