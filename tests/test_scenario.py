@@ -47,6 +47,8 @@ def test_good_scenario_loads():
     ("span: [-600.0, 600.0]", "span: [600, -600]", "s.yaml:4: grid.span: right end must exceed left end"),
     ("  energy: 0.5", "  energy: 0.5\n  wavenumber: 1.0", "packet: give exactly one of energy or wavenumber"),
     ("  duration: 100.0\n", "", "evolve.duration: required key is missing"),
+    ("duration: 100.0", "duration: soon",
+     "s.yaml:13: evolve.duration: must be a time (a number > 0) or 'auto' (got 'soon')"),
     ("  dt: 0.02", "  dt: 0.02\n  scheme: euler", "s.yaml:15: evolve.scheme: must be one of"),
     ("- step: {at: 0.0, height: 1.0}", "- barrier: {start: 2, end: 1, height: 1}",
      "potential[0].barrier.end: must be greater than start"),

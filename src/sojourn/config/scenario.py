@@ -65,9 +65,16 @@ class PacketSpec(_Strict):
 
 
 def _duration_word(value):
-    """'auto' in any case stays the word; anything else is validated as a number."""
-    return value.strip().lower() if isinstance(value, str) and value.strip().lower() == "auto" \
-        else value
+    """'auto' in any case stays the word; other text is refused naming both
+    choices; anything else is validated as a number."""
+    if isinstance(value, str):
+        if value.strip().lower() == "auto":
+            return "auto"
+        try:
+            float(value)
+        except ValueError:
+            raise ValueError(f"must be a time (a number > 0) or 'auto' (got {value!r})") from None
+    return value
 
 
 class EvolveSpec(_Strict):
