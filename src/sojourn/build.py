@@ -13,6 +13,7 @@ from .model import packets
 from .model.grid import Grid
 from .model.potentials import Potential
 from .model.absorber import absorber_profile, default_absorber_strength
+from .model.spin import clock_region, spin_potentials
 from .config.scenario import Scenario
 from .errors import ScenarioError, SojournError
 from .theory.scattering import scatter
@@ -350,6 +351,9 @@ def _build(scenario: Scenario) -> Setup:
         raise ScenarioError(f"{scenario.source}: grid.points: the grid's largest kinetic "
                             f"energy ħ²k_max²/2m = {kinetic_max:g} plus the range of V "
                             f"({v_range:g}) is not a usable number; check mass, grid and potential")
+    clock = _clock(scenario, potential)
+    if clock is not None:   # the spin components' levels reach ħω_L/2 above and below V
+        v_range += hbar * clock[1]
     limit = time_step_limit(kinetic_max, v_range, hbar)
     if scenario.evolve.dt is None:
         dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
@@ -409,7 +413,22 @@ def _build(scenario: Scenario) -> Setup:
     guard(setup, limit, absorber_width)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
+    if clock is not None:   # a spinor: one potential per spin component (guards read V's own)
+        setup.V = spin_potentials(V, grid.x, grid.dx, clock[0], hbar * clock[1])
     return setup
+
+
+def _clock(scenario, potential):
+    """(region, ω_L) of the scenario's Larmor clock, or None without one."""
+    spec = scenario.larmor
+    if spec is None:
+        return None
+    region = clock_region(spec.region, potential)
+    if region is None:
+        line = scenario.line_of("larmor") or 1
+        raise ScenarioError(f"{scenario.source}:{line}: larmor.region: the potential has no "
+                            "extent to default to; give the region")
+    return region, float(spec.omega)
 
 
 

@@ -86,8 +86,9 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
                             "around the periodic box; enlarge the box or add an absorber")
     # probability outside the packet's k-band (spurious high-k components)
     psi = run.psi(len(run.times) - 1)
-    spectrum = np.abs(np.fft.fft(psi)) ** 2
-    kgrid = np.abs(2 * math.pi * np.fft.fftfreq(len(psi), d=run.dx))
+    spectrum = np.abs(np.fft.fft(psi, axis=-1)) ** 2
+    spectrum = spectrum.reshape(-1, spectrum.shape[-1]).sum(axis=0)   # spin components add
+    kgrid = np.abs(2 * math.pi * np.fft.fftfreq(psi.shape[-1], d=run.dx))
     band = np.abs(kgrid - info.k0) <= K_SPAN * info.sigma_k
     shift = 2 * m * (run.level_out - info.level) / hbar ** 2
     edges = [max(info.k0 - K_SPAN * info.sigma_k, 0.0), info.k0 + K_SPAN * info.sigma_k]
