@@ -83,6 +83,8 @@ def format_delay_report(report, moves=None) -> list:
     if d.get("measured") is not None:
         lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "
                       f"{num(d['measured'])}, packet-averaged Büttiker {num(d['predicted'])}"]
+    if any(ch.larmor is not None for ch in report.channels()):   # a spinor run's clock
+        lines += [""] + format_tunnelling_times(report.to_dict(), report.units.get("time", ""))
     if moves:
         lines += ["", "convergence (how far each delay moves):"]
         lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "

@@ -156,6 +156,25 @@ def _richardson(base, finer, order_ratio):
     return abs(base - finer) * order_ratio / (order_ratio - 1)
 
 
+def _clock_error_bars(channel: str, block: dict, reruns: dict, order: int, moves: dict) -> None:
+    """Richardson error bars on a channel's Larmor times (as on the delays)."""
+    for key in ("tau_y", "tau_z", "tau"):
+        base = block[key]["measured"]
+        values = {}
+        for name, rep in reruns.items():
+            other = getattr(rep, channel)
+            if other is not None and other.larmor is not None:
+                values[name] = other.larmor[key]["measured"]
+        if base is None or not values:
+            continue
+        err_grid = _richardson(base, values["grid"], 4.0) if "grid" in values else 0.0
+        err_time = _richardson(base, values["time"], 2.0 ** order) if "time" in values else 0.0
+        block[key]["error"] = SAFETY * max(err_grid, err_time)
+        moves[f"{channel}.larmor.{key}"] = {"grid": values.get("grid", math.nan) - base,
+                                            "time": values.get("time", math.nan) - base,
+                                            "error": block[key]["error"]}
+
+
 def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
            keep: Optional[Path] = None) -> Convergence:
     """Rerun the scenario of a run file on a 2× finer grid with Δt/4 and at Δt/2
@@ -213,6 +232,8 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
                     "grid": values.get("grid", math.nan) - result.delay,
                     "time": values.get("time", math.nan) - result.delay,
                     "error": result.error}
+            if b.larmor is not None:
+                _clock_error_bars(channel, b.larmor, reruns, order, moves)
         return Convergence(base, reruns["grid"], reruns["time"], moves)
     finally:
         if keep is None:
