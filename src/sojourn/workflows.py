@@ -21,6 +21,7 @@ from .engine.propagate import ORDER
 from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
 from .measure import DelayReport, measure_delays
+from .model.spin import clock_region, component_potentials
 from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
 from .store.writer import COMMIT_SECONDS
 from .theory.states import synthesize as synthesize_states
@@ -110,10 +111,16 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
                       else set()))
     nodes = np.array(nodes, dtype=int)
     recordings = list(range(0, setup.steps, setup.record_steps)) + [setup.steps]
+    spinor = len(setup.state_shape) > len(g.shape)
+    potentials = [setup.potential]
+    if spinor:   # each spin component from the stationary states of its own potential
+        region = clock_region(sc.larmor.region, setup.potential)
+        potentials = component_potentials(setup.potential, region, sc.hbar * sc.larmor.omega)
 
     def exact(times, x):
-        return synthesize_states(setup.potential, setup.packet, times, x, hbar=setup.hbar,
-                                 mass=setup.mass, reference=setup.reference)
+        parts = [synthesize_states(p, setup.packet, times, x, hbar=setup.hbar, mass=setup.mass,
+                                   reference=setup.reference) for p in potentials]
+        return np.stack(parts, axis=1) / np.sqrt(len(parts)) if spinor else parts[0]
     try:
         previous = None
         for step in recordings:
@@ -122,9 +129,9 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
             sampled = [0] if previous is None else list(
                 range(previous + setup.sample_steps, step + 1, setup.sample_steps))
             times = np.array(sampled, dtype=float) * setup.dt
-            full = np.zeros(g.points, complex)
+            full = np.zeros(setup.state_shape, complex)
             for tk, values in zip(times, exact(times, g.x[nodes])):
-                full[nodes] = values
+                full[..., nodes] = values
                 sampler.take(full, float(tk))
                 sampler.norm[-1] = 1.0
             psi = exact([step * setup.dt], g.x)[0]

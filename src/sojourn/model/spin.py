@@ -9,6 +9,7 @@ from typing import Optional
 
 import numpy as np
 
+from .potentials import Potential
 from .terms import Barrier
 
 COMPONENTS = ("up", "down")
@@ -37,3 +38,16 @@ def spin_potentials(V, x, dx: float, region: tuple[float, float], splitting: flo
     inside = Barrier(start=a, end=b, height=1.0).cell(np.asarray(x, dtype=float), dx)
     half = 0.5 * float(splitting) * inside
     return np.stack([V + half, V - half])
+
+
+def component_potentials(potential: Potential, region: tuple[float, float],
+                         splitting: float) -> tuple[Potential, Potential]:
+    """(spin up, spin down) as Potentials of their own: `potential` plus a
+    uniform ±splitting/2 barrier over `region` (the stationary theory of each
+    component, e.g. an exact synthesis of a spinor run)."""
+    out = []
+    for sign in (1.0, -1.0):
+        shift = Barrier(start=float(region[0]), end=float(region[1]), height=sign * 0.5 * splitting)
+        out.append(Potential(potential.terms + [shift], mass=potential.mass, span=potential.span,
+                             spacing=potential.spacing))
+    return out[0], out[1]
