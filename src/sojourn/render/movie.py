@@ -259,6 +259,8 @@ class MovieFrame:
                                     untrusted=kind in self.untrusted)
                 axes.append(panel_ax)
             self.panels.append(panel)
+            if kind == "thin" and facts.clock is not None:   # the field region at true width
+                shade_clock(panel_ax, facts, look, label=False)
         apply_look(fig, axes, look, font)
         for panel in self.panels:   # side panels: smaller labels than the main one
             panel.ax.xaxis.label.set_fontsize(0.7 * font)
