@@ -90,6 +90,10 @@ def test_file_resume_inspect_and_api(tmp_path, spinor, monkeypatch):
                                capture_output=True, text=True)
     assert inspected.returncode == 0, inspected.stderr
     assert json.loads(inspected.stdout)["final"]["norm"] == pytest.approx(1.0, abs=1e-6)
+    assert json.loads(inspected.stdout)["axes"] == ["component", "x"]
+    text = subprocess.run([sys.executable, "-m", "sojourn", "inspect", str(path)],
+                          capture_output=True, text=True).stdout
+    assert "a spinor run" in text
     import sojourn
     with sojourn.open(path) as handle:
         assert handle.psi.shape == (len(spinor), 2, setup.grid.points)

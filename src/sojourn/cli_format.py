@@ -55,6 +55,9 @@ def format_inspect(info: dict) -> list:
              "  last recording: " + ", ".join(f"{k} = {v:.6g}" for k, v in info["final"].items()
                                               if k != "t"),
              f"  FFT {info['provenance'].get('fft')}, CPU {info['provenance'].get('cpu')}"]
+    if len(info.get("axes", ("x",))) > 1:
+        lines.append(f"  ψ on axes ({', '.join(info['axes'])}): a spinor run, component 0 spin "
+                     "up, 1 spin down (its observables summed over both)")
     if info["analysis"]:
         lines.append("  holds a saved delay analysis (/analysis)")
     if info.get("forced"):
@@ -129,6 +132,7 @@ def describe_runfile(rf, path) -> dict:
         "final": {k: float(v[-1]) for k, v in obs.items() if len(v)},
         "analysis": rf.analysis() is not None,
         "forced": str(attrs.get("forced") or ""),
+        "axes": list(getattr(rf, "axes", ("x",))),
     }
     return out
 
