@@ -143,3 +143,35 @@ def test_delay_of_a_spinor_run_has_the_clock_and_the_table(tmp_path, spinor):
         for method, got in report[channel]["measured"].items():   # all small: O(ω_L²)
             ref = plain[channel]["measured"][method]["delay"]
             assert abs(got["delay"] - ref) < 5e-3 * abs(ref), method
+
+
+def test_a_mirrored_clock_reads_the_same_times(spinor):
+    # x → −x with the packet coming from the right: the same scattering problem
+    # (parity; common practice, no source), so the same spin in each channel
+    from sojourn.measure import measure_delays
+    mirrored = clock_text({"potential": [{"barrier": {"start": -2.0, "end": 0.0, "height": 1.0}}],
+                           "packet.center": 50.0, "packet.direction": "left",
+                           "measure.detectors": [25.0, -30.0], "larmor.region": [-2.0, 0.0]})
+    left = measure_delays(run_in_memory(build(loads(mirrored)))).to_dict()
+    right = measure_delays(spinor).to_dict()
+    for channel in ("reflection", "transmission"):
+        for key in ("tau_y", "tau_z", "tau"):
+            a, b = (r[channel]["larmor"][key] for r in (left, right))
+            assert a["measured"] == pytest.approx(b["measured"], rel=1e-9)
+            assert a["predicted"] == pytest.approx(b["predicted"], rel=1e-9)
+
+
+def test_verify_gives_the_clock_richardson_error_bars(tmp_path):
+    from sojourn.workflows import verify
+    path = run(build(loads(clock_text(), "clock.yaml")), tmp_path / "clock.h5")
+    checked = verify(path)
+    for channel in ("reflection", "transmission"):
+        block = getattr(checked.report, channel).larmor
+        fine = getattr(checked.finer_grid, channel).larmor
+        for key in ("tau_y", "tau_z", "tau"):
+            move = checked.moves[f"{channel}.larmor.{key}"]
+            assert move["grid"] == pytest.approx(fine[key]["measured"] - block[key]["measured"])
+            # 1.25 × the h² Richardson estimate (as the delays' bars)
+            assert block[key]["error"] >= 1.25 * abs(move["grid"]) * 4 / 3 * (1 - 1e-12)
+            # on this coarse grid the bar covers the deviation from the prediction
+            assert abs(block[key]["deviation"]) <= block[key]["error"]
