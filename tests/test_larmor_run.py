@@ -81,6 +81,9 @@ def test_file_resume_inspect_and_api(tmp_path, spinor, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         run(setup, out, stop=stop)
     path = run(setup, out, resume=True)
+    # the guards' estimate counts both components: an upper bound, and not twice too high
+    from sojourn.guards import file_estimate
+    assert 0.6 * file_estimate(setup) < path.stat().st_size <= file_estimate(setup)
     with RunFile(path) as rf:
         assert rf.axes == ("component", "x") and rf.status == "complete"
         assert rf.psi_rows([0, len(rf) - 1]).shape == (2, 2, setup.grid.points)

@@ -408,13 +408,13 @@ def _build(scenario: Scenario) -> Setup:
     region = tuple(scenario.measure.region) if scenario.measure.region else default_region(
         potential, grid, absorber_width, info)
 
+    if clock is not None:   # a spinor: one potential per spin component
+        V = spin_potentials(V, grid.x, grid.dx, clock[0], hbar * clock[1])
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
                   sample_steps, detectors, reference, region, findings)
     guard(setup, limit, absorber_width)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
-    if clock is not None:   # a spinor: one potential per spin component (guards read V's own)
-        setup.V = spin_potentials(V, grid.x, grid.dx, clock[0], hbar * clock[1])
     return setup
 
 

@@ -35,6 +35,13 @@ def format_check(scenario, setup) -> list:
         f"{', '.join(f'{d:g}' for d in setup.detectors) or 'none'}; region "
         f"{setup.region if setup.region else 'none'}",
     ]
+    if scenario.larmor is not None:
+        up, down = setup.V
+        inside = (up != down).nonzero()[0]   # the arrays' own method: no numpy import here
+        where = f"[{g.x[inside[0]]:g}, {g.x[inside[-1]]:g}]" if inside.size else "no grid cell"
+        lines.append(f"clock      ω_L = {scenario.larmor.omega:g} per {units.time}: spin up "
+                     f"V + ħω_L/2, spin down V − ħω_L/2 on the cells {where}; ψ (2, "
+                     f"{g.points}), spin along +x")
     lines += [f"{f.level:<10} {f}" for f in setup.findings]
     n_err = len(setup.errors())
     lines.append("ok: the scenario can run" if not n_err else
