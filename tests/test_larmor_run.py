@@ -178,3 +178,14 @@ def test_verify_gives_the_clock_richardson_error_bars(tmp_path):
             assert block[key]["error"] >= 1.25 * abs(move["grid"]) * 4 / 3 * (1 - 1e-12)
             # on this coarse grid the bar covers the deviation from the prediction
             assert abs(block[key]["deviation"]) <= block[key]["error"]
+
+
+def test_a_clock_outside_the_box_or_over_the_packet_is_refused_or_warned(write_scenario):
+    out = subprocess.run([sys.executable, "-m", "sojourn", "check",
+                          str(write_scenario(clock_text({"larmor.region": [0.0, 500.0]})))],
+                         capture_output=True, text=True)
+    assert out.returncode == 2 and "larmor.region" in out.stderr + out.stdout
+    assert "Traceback" not in out.stderr
+    setup = build(loads(clock_text({"larmor.region": [-60.0, 2.0]})))
+    assert "larmor.region" in [f.key for f in setup.warnings()]
+    assert "larmor.region" not in [f.key for f in build(loads(clock_text())).findings]

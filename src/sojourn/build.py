@@ -410,12 +410,30 @@ def _build(scenario: Scenario) -> Setup:
 
     if clock is not None:   # a spinor: one potential per spin component
         V = spin_potentials(V, grid.x, grid.dx, clock[0], hbar * clock[1])
+        findings += _clock_findings(clock[0], grid, absorber_width, info)
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
                   sample_steps, detectors, reference, region, findings)
     guard(setup, limit, absorber_width)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup
+
+
+def _clock_findings(region, grid, absorber_width, info) -> list:
+    """A clock region must lie in the box inside the absorbers, and the packet
+    should start clear of it (its spin starts along +x outside the field)."""
+    a, b = region
+    inner = (grid.left + absorber_width, grid.right - absorber_width)
+    if a < inner[0] or b > inner[1]:
+        return [Finding("error", "larmor.region",
+                        f"the clock region [{a:g}, {b:g}] reaches outside the box inside its "
+                        f"absorbers [{inner[0]:g}, {inner[1]:g}]")]
+    if a < info.center + 5 * info.width and b > info.center - 5 * info.width:
+        return [Finding("warning", "larmor.region",
+                        f"the packet starts inside the clock region [{a:g}, {b:g}] (within 5 "
+                        "widths of its centre): its spin precesses from t = 0 and the times "
+                        "it reads are not those of the scattering")]
+    return []
 
 
 def _clock(scenario, potential):
