@@ -164,9 +164,13 @@ def test_a_mirrored_clock_reads_the_same_times(spinor):
             assert a["predicted"] == pytest.approx(b["predicted"], rel=1e-9)
 
 
-def test_verify_gives_the_clock_richardson_error_bars(tmp_path):
+def test_verify_gives_the_clock_richardson_error_bars(tmp_path, capsys):
+    from sojourn import cli
     from sojourn.workflows import verify
     path = run(build(loads(clock_text(), "clock.yaml")), tmp_path / "clock.h5")
+    assert cli.main(["delay", str(path), "--verify"]) == 0      # the command, text report
+    text = capsys.readouterr().out
+    assert "tunnelling times" in text and "transmission.larmor.tau_z" in text
     checked = verify(path)
     for channel in ("reflection", "transmission"):
         block = getattr(checked.report, channel).larmor

@@ -147,7 +147,8 @@ def describe_runfile(rf, path) -> dict:
 def format_tunnelling_times(report: dict, time_unit: str = "") -> list:
     """Every tunnelling time of a `delay --json` report side by side: the phase
     time of each method, the dwell time and the Larmor times τ_y, τ_z, τ, each
-    measured and predicted, per channel (a channel without a clock shows '—')."""
+    measured (± its error bar, when `--verify` gave one) and predicted, per
+    channel (a channel without a clock shows '—')."""
     channels = [c for c in ("reflection", "transmission") if report.get(c)]
     if not channels:
         return []
@@ -155,16 +156,21 @@ def format_tunnelling_times(report: dict, time_unit: str = "") -> list:
     methods = list(dict.fromkeys(m for c in channels for m in report[c]["measured"]))
     for m in methods:
         rows.append((f"phase time ({m})", [
-            (report[c]["measured"].get(m, {}).get("delay"),
-             report[c]["measured"].get(m, {}).get("predicted")) for c in channels]))
-    rows.append(("dwell", [(report[c]["dwell"].get("measured"), report[c]["dwell"].get("predicted"))
-                           for c in channels]))
+            _cell(report[c]["measured"].get(m, {}), "delay") for c in channels]))
+    rows.append(("dwell", [_cell(report[c]["dwell"], "measured") for c in channels]))
     for key, label in (("tau_y", "Larmor τ_y"), ("tau_z", "Larmor τ_z"), ("tau", "Larmor τ")):
-        rows.append((label, [
-            ((report[c].get("larmor") or {}).get(key, {}).get("measured"),
-             (report[c].get("larmor") or {}).get(key, {}).get("predicted")) for c in channels]))
+        rows.append((label, [_cell((report[c].get("larmor") or {}).get(key, {}), "measured")
+                             for c in channels]))
     head = f"  {'':<22}" + "".join(f"{c + ' measured':>24}{'predicted':>14}" for c in channels)
     lines = [f"tunnelling times ({time_unit})" if time_unit else "tunnelling times", head]
     for label, cells in rows:
-        lines.append(f"  {label:<22}" + "".join(f"{num(a):>24}{num(b):>14}" for a, b in cells))
+        lines.append(f"  {label:<22}" + "".join(f"{a:>24}{num(b):>14}" for a, b in cells))
     return lines
+
+
+def _cell(entry: dict, key: str) -> tuple:
+    """(measured text with its error bar if any, predicted) of one table entry."""
+    error = entry.get("error")
+    text = num(entry.get(key))
+    return (f"{text} ±{error:.2g}" if isinstance(error, (int, float)) else text,
+            entry.get("predicted"))
