@@ -44,7 +44,7 @@ def test_the_density_drawn_is_spin_summed_and_the_spin_read_per_side(spinor_run)
         assert prob == pytest.approx(np.sum(np.abs(psi[:, side]) ** 2) * (x[1] - x[0]))
 
 
-@pytest.mark.parametrize("size", [(640, 360), (1280, 720), (1080, 1080)])
+@pytest.mark.parametrize("size", [(640, 360), (1080, 1080)])
 def test_movie_frames_carry_the_arrows_and_nothing_leaves_the_canvas(spinor_run, size):
     with RunFile(spinor_run) as rf:
         facts = render.run_facts(rf)

@@ -39,7 +39,10 @@ def test_synthesised_spinor_run_reads_the_packet_average(tmp_path):
     # the exact spinor run (each component synthesised from its own stationary
     # states) gives the spin ratio-of-integrals of PHYSICS §Larmor, with weights
     # |ψ̃₀(k)|²·(k'/k)|t±|²: agreement to quadrature accuracy in both channels
-    path = synthesize(build(loads(SCENARIO, "s.yaml")), tmp_path / "exact.h5")
+    # (sparse recordings and samples: the spin is read from the snapshots alone)
+    coarse = with_changes(loads(SCENARIO, "s.yaml"), {"record.every": 50.0,
+                                                     "record.sample_steps": 125})
+    path = synthesize(build(coarse), tmp_path / "exact.h5")
     report = measure_delays(path)
     for channel in CHANNELS:
         block = getattr(report, channel).larmor
@@ -53,6 +56,7 @@ def test_synthesised_spinor_run_reads_the_packet_average(tmp_path):
     assert 0 < abs(tz["finite_field"]) < 1e-3 * abs(tz["predicted"])
 
 
+@pytest.mark.slow
 def test_propagated_runs_converge_to_the_prediction():
     # second-order split-operator runs, dx halved and dt quartered: the deviation
     # from the exact finite-field prediction falls as h² (common practice, no source)
