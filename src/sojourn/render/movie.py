@@ -280,9 +280,9 @@ class MovieFrame:
         """Update the moving artists for (t, ψ) and return the frame, H×W×4 RGBA
         uint8 (the canvas buffer itself; valid until the next call)."""
         f = self.facts
-        if self.spin is not None:   # a spinor: its arrows, then the spin-summed state
+        if self.spin is not None:   # a spinor's arrows
             self.spin.update(psi)
-            psi = spin_summed(psi)
+        psi = spin_summed(psi)      # a spinor drawn spin-summed (a scalar ψ passes unchanged)
         full = psi
         psi = psi[self.index]
         density = psi.real ** 2 + psi.imag ** 2

@@ -15,6 +15,7 @@ from typing import Optional
 import numpy as np
 from matplotlib.patches import Circle
 
+from ..errors import SojournError
 from ..theory.larmor import larmor_times
 from ..theory.scattering import scatter
 from .facts import RunFacts
@@ -92,7 +93,7 @@ def magnification(facts: RunFacts) -> float:
                           region=(a, b), direction="right" if facts.packet.k0 >= 0 else "left")
         turn = omega * float(np.nanmax(np.abs([lt.tau_y_transmission, lt.tau_y_reflection,
                                                lt.tau_z_transmission, lt.tau_z_reflection])))
-    except Exception:   # noqa: BLE001 (a picture without theory: no magnification known)
+    except (SojournError, ValueError, FloatingPointError):   # no theory: no gain known
         turn = 0.0
     if not (math.isfinite(turn) and turn > 0):
         return 1.0
