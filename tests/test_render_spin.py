@@ -100,3 +100,18 @@ def test_figure_sets_the_clocks_side_by_side(spinor_run, size):
         assert containers, channel
         y = containers[0][0].get_ydata()[0]
         assert y == pytest.approx(analysis[channel]["larmor"]["tau_y"]["measured"])
+
+
+def test_figure_without_theory_still_shows_the_measured_clocks(spinor_run, monkeypatch):
+    from sojourn.errors import TheoryError
+    from sojourn.render import spin
+
+    def refuse(facts, energies):
+        raise TheoryError("the layered solver cannot treat this potential")
+    monkeypatch.setattr(spin, "clock_curves", refuse)
+    fig = render.figure(spinor_run, render.FigureOptions(size=(7.0, 4.5), dpi=80))
+    texts = [t.get_text() for ax in fig.axes for t in ax.texts]
+    assert any(t.startswith("no theory curves") for t in texts)
+    assert any(c.get_label() == "measured-transmission-tau_y" or
+               getattr(c[0], "get_gid", lambda: None)() == "measured-transmission-tau_y"
+               for ax in fig.axes for c in ax.containers)

@@ -212,14 +212,19 @@ def clock_panels(axes, facts: RunFacts, look: Look, font: float, lw: float) -> N
     sigma_e = energy_width(info, facts.hbar, facts.mass)
     lo = max(info.energy - 3 * sigma_e, info.level + 1e-3 * sigma_e)
     energies = np.linspace(lo, info.energy + 3 * sigma_e, 200)
-    curves = clock_curves(facts, energies)
+    try:
+        curves = clock_curves(facts, energies)
+    except (SojournError, ValueError, FloatingPointError) as exc:   # the points alone
+        curves = None
+        axes[0].text(0.5, 0.5, f"no theory curves: {exc}"[:80], transform=axes[0].transAxes,
+                     ha="center", va="center", color=look.text, fontsize=0.5 * font, wrap=True)
     analysis = facts.analysis or {}
     for ax, channel in zip(axes, ("transmission", "reflection")):
         for i, (clock, label) in enumerate(CLOCK_LABELS.items()):
             colour = CLOCK_COLOURS[clock]
-            ax.plot(energies, curves[channel][clock], color=colour, linewidth=lw,
-                    linestyle="-" if clock.startswith("tau") else (0, (4, 2)), label=label,
-                    gid=f"clock-{channel}-{clock}")
+            ax.plot(energies, curves[channel][clock] if curves else np.full_like(energies, np.nan),
+                    color=colour, linewidth=lw, label=label, gid=f"clock-{channel}-{clock}",
+                    linestyle="-" if clock.startswith("tau") else (0, (4, 2)))
             got = _measured(analysis.get(channel), clock)
             e = info.energy + (i - 2) * 0.08 * sigma_e     # the points side by side about E₀
             if got and got[0] is not None:
