@@ -193,3 +193,16 @@ def test_a_clock_outside_the_box_or_over_the_packet_is_refused_or_warned(write_s
     setup = build(loads(clock_text({"larmor.region": [-60.0, 2.0]})))
     assert "larmor.region" in [f.key for f in setup.warnings()]
     assert "larmor.region" not in [f.key for f in build(loads(clock_text())).findings]
+
+
+def test_a_clock_without_theory_is_still_measured(spinor, monkeypatch):
+    from sojourn.errors import TheoryError
+    from sojourn.measure import larmor, measure_delays
+
+    def refuse(*args, **kw):
+        raise TheoryError("the layered solver cannot treat this potential")
+    monkeypatch.setattr(larmor, "packet_larmor", refuse)
+    report = measure_delays(spinor)
+    block = report.transmission.larmor
+    assert block["tau_y"]["measured"] > 0 and block["tau_y"]["predicted"] is None
+    assert any(w.startswith("no Larmor prediction") for w in report.warnings)

@@ -17,7 +17,7 @@ from typing import Optional
 import numpy as np
 
 from ..config.scenario import Scenario, with_changes
-from ..errors import MeasureError
+from ..errors import MeasureError, SojournError
 from ..model.packets import PacketInfo
 from ..model.spin import clock_region
 from ..theory.larmor import packet_larmor, spin_vector, times_from_spin
@@ -151,9 +151,13 @@ def measure_clock(run: ForwardRun, stats: dict, scenario: Scenario, packet: Pack
     region, omega = clock(scenario)
     lo, hi = sorted((run.sign * region[0], run.sign * region[1]))
     edges = (min(run.x_r, lo), max(run.x_t, hi))
-    pred = packet_larmor(scenario.build_potential(), packet.k0, packet.sigma_k, packet.level,
-                         hbar=scenario.hbar, omega=omega, region=region)
     out, warnings = {}, []
+    try:
+        pred = packet_larmor(scenario.build_potential(), packet.k0, packet.sigma_k, packet.level,
+                             hbar=scenario.hbar, omega=omega, region=region)
+    except SojournError as exc:    # measured all the same, beside no prediction
+        pred = {}
+        warnings.append(f"no Larmor prediction: {exc}")
     for channel in channels:
         usable = separated(run, stats, channel)
         index = int(np.nonzero(usable)[0][-1]) if usable.any() else len(run.times) - 1
