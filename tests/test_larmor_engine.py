@@ -45,11 +45,14 @@ def test_component_axis_propagates_each_component_with_its_own_potential():
 def test_component_axis_shape_checks():
     sc = loads(SCENARIO)
     setup = build(sc)
+    assert setup.V.shape == (2, setup.grid.points)   # the clock's scenario builds a spinor
     with pytest.raises(ValueError):
         Propagator(setup.grid, np.zeros((2, 3)), 1.0, 1.0, 0.1)
-    prop = Propagator(setup.grid, np.stack([setup.V, setup.V]), 1.0, 1.0, 0.1)
     with pytest.raises(ValueError):
-        prop.set_state(setup.psi0())
+        Propagator(setup.grid, np.stack([setup.V, setup.V]), 1.0, 1.0, 0.1)
+    prop = Propagator(setup.grid, setup.V, 1.0, 1.0, 0.1)
+    with pytest.raises(ValueError):
+        prop.set_state(setup.psi0()[0])
 
 
 def test_delay_report_gains_larmor_blocks_and_the_tunnelling_table():

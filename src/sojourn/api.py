@@ -34,37 +34,39 @@ PathLike = Union[str, os.PathLike]
 
 
 class Snapshots:
-    """ψ (or |ψ|²) of a run as a lazy (t, x) array: indexing reads only the rows
-    asked (`psi[i]`, `psi[-1]`, `psi[::5]`, `psi[[0, 3]]`, `psi[:, a:b]`);
-    `np.asarray(psi)` reads them all."""
+    """ψ (or |ψ|²) of a run as a lazy (t, x) array — (t, component, x) for ψ of a
+    spinor run, whose density is summed over the components: indexing reads
+    only the rows asked (`psi[i]`, `psi[-1]`, `psi[::5]`, `psi[[0, 3]]`,
+    `psi[:, a:b]`); `np.asarray(psi)` reads them all."""
 
     def __init__(self, reader: RunReader, density: bool = False):
         self._reader, self._density = reader, density
         single = reader.attrs.get("precision") == "single"    # as store.layout.psi_dtype
         self.dtype = np.dtype(("f4" if single else "f8") if density else
                               ("c8" if single else "c16"))
-
-    @property
-    def shape(self) -> tuple[int, int]:
-        return (len(self._reader), len(self._reader.x))
-
-    ndim = 2
+        self._spinor = len(tuple(getattr(reader, "axes", ("x",)))) > 1
+        state = tuple(np.shape(reader.V)) if self._spinor else (len(reader.x),)
+        self.shape = (len(reader),) + (state[-1:] if density else state)
+        self.ndim = len(self.shape)
 
     def __len__(self) -> int:
         return len(self._reader)
 
     def __getitem__(self, key):
         rows, columns = (key[0], key[1:]) if isinstance(key, tuple) else (key, ())
-        if len(columns) > 1:
-            raise IndexError(f"snapshots are (t, x): {len(columns) + 1} indices given")
+        if len(columns) > self.ndim - 1:
+            raise IndexError(f"snapshots have {self.ndim} axes: {len(columns) + 1} indices given")
         if isinstance(rows, (int, np.integer)):
             values = self._reader.psi(int(rows))
         else:
             indices = np.arange(len(self))[rows]   # slices, lists, masks; checks bounds
             values = self._reader.psi_rows(np.atleast_1d(indices))
             columns = (slice(None),) + columns
-        values = values[columns] if columns else values
-        return np.abs(values) ** 2 if self._density else values
+        if self._density:
+            values = np.abs(values) ** 2
+            if self._spinor:     # the spin components' densities add
+                values = values.sum(axis=-2)
+        return values[columns] if columns else values
 
     def __array__(self, dtype=None, copy=None):
         values = self[:]
@@ -76,7 +78,8 @@ class Snapshots:
 
     def __repr__(self) -> str:
         what = "density" if self._density else "psi"
-        return f"<sojourn {what}: {self.shape[0]} snapshots × {self.shape[1]} points, lazy>"
+        return (f"<sojourn {what}: {self.shape[0]} snapshots × "
+                f"{' × '.join(map(str, self.shape[1:]))} points, lazy>")
 
 
 class Run:
@@ -104,7 +107,7 @@ class Run:
 
     @property
     def V(self) -> np.ndarray:
-        """The potential on the grid (N,), in units["energy"]."""
+        """The potential on the grid (N,), (2, N) for a spinor run (spin up, down), in units["energy"]."""
         return self.reader.V
 
     @property
@@ -205,9 +208,13 @@ def _dataset(run: Run):
     label = labels(run.units)
     t, x = run.t, run.x
     coords = {"t": ("t", t, label["t"]), "x": ("x", x, label["x"])}
-    data = {name: (("t", "x"), indexing.LazilyIndexedArray(_LazyRows(view)), label[name])
-            for name, view in (("psi", run.psi), ("density", run.density))}
-    data["V"] = ("x", run.V, label["V"])
+    state = tuple(getattr(run.reader, "axes", ("x",)))
+    if len(state) > 1:      # a spinor: component 0 spin up, 1 spin down (along the field)
+        coords["component"] = ("component", np.arange(np.shape(run.V)[0]),
+                               {"long_name": "spin component (0 up, 1 down along z)"})
+    data = {name: (("t",) + dims, indexing.LazilyIndexedArray(_LazyRows(view)), label[name])
+            for name, view, dims in (("psi", run.psi, state), ("density", run.density, ("x",)))}
+    data["V"] = (state, run.V, label["V"])
     if run.absorber is not None:
         data["absorber"] = ("x", run.absorber, label["absorber"])
     for name, values in run.observables.items():

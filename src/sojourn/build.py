@@ -13,6 +13,7 @@ from .model import packets
 from .model.grid import Grid
 from .model.potentials import Potential
 from .model.absorber import absorber_profile, default_absorber_strength
+from .model.spin import clock_region, spin_potentials
 from .config.scenario import Scenario
 from .errors import ScenarioError, SojournError
 from .theory.scattering import scatter
@@ -350,6 +351,9 @@ def _build(scenario: Scenario) -> Setup:
         raise ScenarioError(f"{scenario.source}: grid.points: the grid's largest kinetic "
                             f"energy ħ²k_max²/2m = {kinetic_max:g} plus the range of V "
                             f"({v_range:g}) is not a usable number; check mass, grid and potential")
+    clock = _clock(scenario, potential)
+    if clock is not None:   # the spin components' levels reach ħω_L/2 above and below V
+        v_range += hbar * clock[1]
     limit = time_step_limit(kinetic_max, v_range, hbar)
     if scenario.evolve.dt is None:
         dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
@@ -404,12 +408,45 @@ def _build(scenario: Scenario) -> Setup:
     region = tuple(scenario.measure.region) if scenario.measure.region else default_region(
         potential, grid, absorber_width, info)
 
+    if clock is not None:   # a spinor: one potential per spin component
+        V = spin_potentials(V, grid.x, grid.dx, clock[0], hbar * clock[1])
+        findings += _clock_findings(clock[0], grid, absorber_width, info)
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
                   sample_steps, detectors, reference, region, findings)
     guard(setup, limit, absorber_width)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup
+
+
+def _clock_findings(region, grid, absorber_width, info) -> list:
+    """A clock region must lie in the box inside the absorbers, and the packet
+    should start clear of it (its spin starts along +x outside the field)."""
+    a, b = region
+    inner = (grid.left + absorber_width, grid.right - absorber_width)
+    if a < inner[0] or b > inner[1]:
+        return [Finding("error", "larmor.region",
+                        f"the clock region [{a:g}, {b:g}] reaches outside the box inside its "
+                        f"absorbers [{inner[0]:g}, {inner[1]:g}]")]
+    if a < info.center + 5 * info.width and b > info.center - 5 * info.width:
+        return [Finding("warning", "larmor.region",
+                        f"the packet starts inside the clock region [{a:g}, {b:g}] (within 5 "
+                        "widths of its centre): its spin precesses from t = 0 and the times "
+                        "it reads are not those of the scattering")]
+    return []
+
+
+def _clock(scenario, potential):
+    """(region, ω_L) of the scenario's Larmor clock, or None without one."""
+    spec = scenario.larmor
+    if spec is None:
+        return None
+    region = clock_region(spec.region, potential)
+    if region is None:
+        line = scenario.line_of("larmor") or 1
+        raise ScenarioError(f"{scenario.source}:{line}: larmor.region: the potential has no "
+                            "extent to default to; give the region")
+    return region, float(spec.omega)
 
 
 

@@ -35,6 +35,13 @@ def format_check(scenario, setup) -> list:
         f"{', '.join(f'{d:g}' for d in setup.detectors) or 'none'}; region "
         f"{setup.region if setup.region else 'none'}",
     ]
+    if scenario.larmor is not None:
+        up, down = setup.V
+        inside = (up != down).nonzero()[0]   # the arrays' own method: no numpy import here
+        where = f"[{g.x[inside[0]]:g}, {g.x[inside[-1]]:g}]" if inside.size else "no grid cell"
+        lines.append(f"clock      ω_L = {scenario.larmor.omega:g} per {units.time}: spin up "
+                     f"V + ħω_L/2, spin down V − ħω_L/2 on the cells {where}; ψ (2, "
+                     f"{g.points}), spin along +x")
     lines += [f"{f.level:<10} {f}" for f in setup.findings]
     n_err = len(setup.errors())
     lines.append("ok: the scenario can run" if not n_err else
@@ -55,6 +62,9 @@ def format_inspect(info: dict) -> list:
              "  last recording: " + ", ".join(f"{k} = {v:.6g}" for k, v in info["final"].items()
                                               if k != "t"),
              f"  FFT {info['provenance'].get('fft')}, CPU {info['provenance'].get('cpu')}"]
+    if len(info.get("axes", ("x",))) > 1:
+        lines.append(f"  ψ on axes ({', '.join(info['axes'])}): a spinor run, component 0 spin "
+                     "up, 1 spin down (its observables summed over both)")
     if info["analysis"]:
         lines.append("  holds a saved delay analysis (/analysis)")
     if info.get("forced"):
@@ -88,6 +98,8 @@ def format_delay_report(report, moves=None) -> list:
             lines[-1] += (f", relative {d['relative']:+.2e}" + (
                 f" (the grid's resolution of the evanescent tail allows about ±{allowed:.1e})"
                 if allowed is not None and allowed >= 1e-3 else ""))
+    if any(ch.larmor is not None for ch in report.channels()):   # a spinor run's clock
+        lines += [""] + format_tunnelling_times(report.to_dict(), report.units.get("time", ""))
     if moves:
         lines += ["", "convergence (how far each delay moves):"]
         lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "
@@ -132,6 +144,7 @@ def describe_runfile(rf, path) -> dict:
         "final": {k: float(v[-1]) for k, v in obs.items() if len(v)},
         "analysis": rf.analysis() is not None,
         "forced": str(attrs.get("forced") or ""),
+        "axes": list(getattr(rf, "axes", ("x",))),
     }
     return out
 
@@ -139,7 +152,8 @@ def describe_runfile(rf, path) -> dict:
 def format_tunnelling_times(report: dict, time_unit: str = "") -> list:
     """Every tunnelling time of a `delay --json` report side by side: the phase
     time of each method, the dwell time and the Larmor times τ_y, τ_z, τ, each
-    measured and predicted, per channel (a channel without a clock shows '—')."""
+    measured (± its error bar, when `--verify` gave one) and predicted, per
+    channel (a channel without a clock shows '—')."""
     channels = [c for c in ("reflection", "transmission") if report.get(c)]
     if not channels:
         return []
@@ -147,16 +161,21 @@ def format_tunnelling_times(report: dict, time_unit: str = "") -> list:
     methods = list(dict.fromkeys(m for c in channels for m in report[c]["measured"]))
     for m in methods:
         rows.append((f"phase time ({m})", [
-            (report[c]["measured"].get(m, {}).get("delay"),
-             report[c]["measured"].get(m, {}).get("predicted")) for c in channels]))
-    rows.append(("dwell", [(report[c]["dwell"].get("measured"), report[c]["dwell"].get("predicted"))
-                           for c in channels]))
+            _cell(report[c]["measured"].get(m, {}), "delay") for c in channels]))
+    rows.append(("dwell", [_cell(report[c]["dwell"], "measured") for c in channels]))
     for key, label in (("tau_y", "Larmor τ_y"), ("tau_z", "Larmor τ_z"), ("tau", "Larmor τ")):
-        rows.append((label, [
-            ((report[c].get("larmor") or {}).get(key, {}).get("measured"),
-             (report[c].get("larmor") or {}).get(key, {}).get("predicted")) for c in channels]))
+        rows.append((label, [_cell((report[c].get("larmor") or {}).get(key, {}), "measured")
+                             for c in channels]))
     head = f"  {'':<22}" + "".join(f"{c + ' measured':>24}{'predicted':>14}" for c in channels)
     lines = [f"tunnelling times ({time_unit})" if time_unit else "tunnelling times", head]
     for label, cells in rows:
-        lines.append(f"  {label:<22}" + "".join(f"{num(a):>24}{num(b):>14}" for a, b in cells))
+        lines.append(f"  {label:<22}" + "".join(f"{a:>24}{num(b):>14}" for a, b in cells))
     return lines
+
+
+def _cell(entry: dict, key: str) -> tuple:
+    """(measured text with its error bar if any, predicted) of one table entry."""
+    error = entry.get("error")
+    text = num(entry.get(key))
+    return (f"{text} ±{error:.2g}" if isinstance(error, (int, float)) else text,
+            entry.get("predicted"))

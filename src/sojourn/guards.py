@@ -245,9 +245,10 @@ def guard(s, limit: float, absorber_width: float) -> None:
             break
 
     # memory, disk and run time
-    memory = memory_estimate(grid.points, s.scenario.evolve.precision)
+    points = int(np.prod(s.state_shape))    # a spinor carries one state per component
+    memory = memory_estimate(points, s.scenario.evolve.precision)
     disk = file_estimate(s)
-    seconds = run_time_estimate(grid.points, s.steps, s.scenario.evolve.scheme,
+    seconds = run_time_estimate(points, s.steps, s.scenario.evolve.scheme,
                                 s.scenario.evolve.precision)
     if seconds > MAX_RUN_SECONDS:
         add(Finding("error", "evolve.duration",
@@ -323,7 +324,8 @@ def rendering_error(s) -> Optional[dict]:
     support = potential.support()
     if potential.confining or support is None or potential.deltas():
         return None
-    rendered = rendered_potential(s.grid.x, s.V, s.grid.dx, support, s.mass)
+    V = s.V if s.V.ndim == 1 else s.V.mean(axis=0)   # a spinor's components: V ± ħω_L/2
+    rendered = rendered_potential(s.grid.x, V, s.grid.dx, support, s.mass)
     if rendered is None:
         return None
     staircase, left = rendered
@@ -390,7 +392,8 @@ def band_floor(info, hbar: float, mass: float) -> float:
 def _dwell_resolution(s, add) -> None:
     if s.region is None or s.potential.confining:
         return
-    inside = s.V if s.W is None else s.V[s.W == 0]
+    V = s.V if s.V.ndim == 1 else s.V.mean(axis=0)   # a spinor's components: V ± ħω_L/2
+    inside = V if s.W is None else V[s.W == 0]
     error = dwell_grid_error(inside, s.grid.dx, band_floor(s.packet, s.hbar, s.mass),
                              s.hbar, s.mass)
     if error is None or error < RENDERING_WARN:

@@ -21,6 +21,7 @@ from .engine.propagate import ORDER
 from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
 from .measure import DelayReport, measure_delays
+from .model.spin import clock_region, component_potentials
 from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
 from .store.writer import COMMIT_SECONDS
 from .theory.states import synthesize as synthesize_states
@@ -110,10 +111,16 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
                       else set()))
     nodes = np.array(nodes, dtype=int)
     recordings = list(range(0, setup.steps, setup.record_steps)) + [setup.steps]
+    spinor = len(setup.state_shape) > len(g.shape)
+    potentials = [setup.potential]
+    if spinor:   # each spin component from the stationary states of its own potential
+        region = clock_region(sc.larmor.region, setup.potential)
+        potentials = component_potentials(setup.potential, region, sc.hbar * sc.larmor.omega)
 
     def exact(times, x):
-        return synthesize_states(setup.potential, setup.packet, times, x, hbar=setup.hbar,
-                                 mass=setup.mass, reference=setup.reference)
+        parts = [synthesize_states(p, setup.packet, times, x, hbar=setup.hbar, mass=setup.mass,
+                                   reference=setup.reference) for p in potentials]
+        return np.stack(parts, axis=1) / np.sqrt(len(parts)) if spinor else parts[0]
     try:
         previous = None
         for step in recordings:
@@ -122,9 +129,9 @@ def synthesize(setup: Setup, output: Path, overwrite: bool = False,
             sampled = [0] if previous is None else list(
                 range(previous + setup.sample_steps, step + 1, setup.sample_steps))
             times = np.array(sampled, dtype=float) * setup.dt
-            full = np.zeros(g.points, complex)
+            full = np.zeros(setup.state_shape, complex)
             for tk, values in zip(times, exact(times, g.x[nodes])):
-                full[nodes] = values
+                full[..., nodes] = values
                 sampler.take(full, float(tk))
                 sampler.norm[-1] = 1.0
             psi = exact([step * setup.dt], g.x)[0]
@@ -154,6 +161,25 @@ class Convergence:
 def _richardson(base, finer, order_ratio):
     """Error estimate of `base` from a run whose error is `order_ratio` times smaller."""
     return abs(base - finer) * order_ratio / (order_ratio - 1)
+
+
+def _clock_error_bars(channel: str, block: dict, reruns: dict, order: int, moves: dict) -> None:
+    """Richardson error bars on a channel's Larmor times (as on the delays)."""
+    for key in ("tau_y", "tau_z", "tau"):
+        base = block[key]["measured"]
+        values = {}
+        for name, rep in reruns.items():
+            other = getattr(rep, channel)
+            if other is not None and other.larmor is not None:
+                values[name] = other.larmor[key]["measured"]
+        if base is None or not values:
+            continue
+        err_grid = _richardson(base, values["grid"], 4.0) if "grid" in values else 0.0
+        err_time = _richardson(base, values["time"], 2.0 ** order) if "time" in values else 0.0
+        block[key]["error"] = SAFETY * max(err_grid, err_time)
+        moves[f"{channel}.larmor.{key}"] = {"grid": values.get("grid", math.nan) - base,
+                                            "time": values.get("time", math.nan) - base,
+                                            "error": block[key]["error"]}
 
 
 def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
@@ -213,6 +239,8 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
                     "grid": values.get("grid", math.nan) - result.delay,
                     "time": values.get("time", math.nan) - result.delay,
                     "error": result.error}
+            if b.larmor is not None:
+                _clock_error_bars(channel, b.larmor, reruns, order, moves)
         return Convergence(base, reruns["grid"], reruns["time"], moves)
     finally:
         if keep is None:

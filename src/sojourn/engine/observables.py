@@ -82,9 +82,13 @@ class Detectors:
         out = np.empty(len(self.positions))
         one_axis = psi.ndim == 1
         for i, (sl, wv, ws) in enumerate(zip(self._slices, self._value, self._slope)):
-            local = psi[sl] if one_axis else psi[..., sl]
-            current = (np.dot(local, wv).conjugate() * np.dot(local, ws)).imag
-            out[i] = self.factor * (current if one_axis else current.sum())
+            if one_axis:
+                current = (np.dot(psi[sl], wv).conjugate() * np.dot(psi[sl], ws)).imag
+            else:   # a leading axis (spinor components; weights folded per component or shared)
+                local = psi[..., sl]
+                current = (np.sum(local * wv, axis=-1).conjugate()
+                           * np.sum(local * ws, axis=-1)).imag.sum()
+            out[i] = self.factor * current
         return out
 
 

@@ -41,7 +41,8 @@ class Sampler:
                     sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
                 self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
         self.raw_absorbed = list(raw_absorbed)
-        self._spectrum = FFTPair(g.shape)  # a planned transform for ⟨p⟩ and ⟨H⟩
+        shape = setup.state_shape         # a planned transform for ⟨p⟩ and ⟨H⟩ over the grid's
+        self._spectrum = FFTPair(shape, axes=range(len(shape) - len(g.shape), len(shape)))  # axes
         self.reset()
 
     def _transform(self, psi: np.ndarray) -> np.ndarray:
@@ -62,7 +63,7 @@ class Sampler:
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
         for side, (sl, root_rate) in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled
-            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[sl]) * self.dx * self.dt \
+            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[..., sl]) * self.dx * self.dt \
                 * self.every
         for side, value in enumerate(self.split_absorbed(total)):
             self.absorbed[side].append(value)

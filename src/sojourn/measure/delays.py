@@ -13,7 +13,7 @@ from ..errors import MeasureError
 from ..guards import band_floor, dwell_grid_error
 from ..model.packets import PacketInfo
 from ..store import RunFile
-from . import health
+from . import health, larmor
 from .frame import ForwardRun, predictions, snapshot_stats
 from .methods import METHODS, channel_context
 from .report import ChannelReport, DelayReport
@@ -49,8 +49,11 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
                                "nothing to measure")
         prediction, why = predictions(potential, PacketInfo(**rf.packet), run.hbar, run.mass,
                                       rf.reference, run.region)
-        return measure_run(run, ref, prediction, why, path=str(rf.path), units=rf.units,
-                           status=rf.status)
+        report = measure_run(run, ref, prediction, why, path=str(rf.path), units=rf.units,
+                             status=rf.status)
+        if larmor.is_spinor(rf):
+            attach_clock(report, run, rf.scenario(), PacketInfo(**rf.packet))
+        return report
     finally:
         for f in opened:
             f.close()
@@ -62,6 +65,22 @@ def _open(source, opened: list):
         opened.append(rf)
         return rf
     return source
+
+
+def attach_clock(report: DelayReport, run: ForwardRun, scenario, packet: PacketInfo) -> None:
+    """Add each measured channel's Larmor block (a spinor run) and its warnings.
+    The ordinary methods above measured the spin-summed run (PHYSICS §Larmor)."""
+    if getattr(scenario, "larmor", None) is None:
+        raise MeasureError(f"{report.file}: a spinor run without a `larmor` clock in its "
+                           "scenario: nothing says which field split its components")
+    measured = [c.channel for c in report.channels()]
+    blocks, warnings = larmor.measure_clock(run, snapshot_stats(run), scenario, packet, measured)
+    for channel in report.channels():
+        channel.larmor = blocks.get(channel.channel)
+    report.warnings += warnings
+    report.notes.append("spinor run: the delays and the dwell time are those of the spin-summed "
+                        "density and flux, each predicted for the field-free potential (the "
+                        "clock shifts them by O(ω_L²))")
 
 
 def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Optional[str], *,
@@ -140,7 +159,8 @@ def dwell_time(run: ForwardRun, prediction) -> dict:
     incident = float(run.observables["norm"][0])
     value = float(np.trapezoid(s["P_region"], s["t"]) / incident)
     predicted = prediction.dwell if prediction is not None else None
-    inside = run.V if run.W is None else run.V[run.W == 0]
+    V = np.mean(np.reshape(run.V, (-1, run.V.shape[-1])), axis=0)   # spin components: their mean
+    inside = V if run.W is None else V[run.W == 0]
     grid_error = dwell_grid_error(inside, run.dx, band_floor(run.info, run.hbar, run.mass),
                                   run.hbar, run.mass)
     return {"measured": value, "predicted": predicted,

@@ -57,13 +57,14 @@ class ForwardRun:
         `support` is the potential's (start, end) or None, `levels` its
         (left, right) levels far out."""
         x, V = np.asarray(x, float), np.asarray(V, float)
-        if x.ndim != 1 or len(x) < 2 or V.shape != x.shape:
-            raise MeasureError("the run's grid and potential must be 1D arrays of one length")
+        if x.ndim != 1 or len(x) < 2 or V.shape[-1:] != x.shape or V.ndim > 2:
+            raise MeasureError("the run's grid and potential must be 1D arrays of one length "
+                               "(V with at most a leading spin-component axis)")
         sign = 1 if packet.k0 >= 0 else -1
         samples, obs = dict(samples), dict(observables)
         info = packet
         if sign < 0:
-            x, V = -x[::-1], V[::-1]
+            x, V = -x[::-1], V[..., ::-1]
             W = None if W is None else W[::-1]
             samples["flux"] = -samples["flux"]
             samples["detectors"] = -np.asarray(samples["detectors"], float)
@@ -108,15 +109,22 @@ class ForwardRun:
 
     def psi(self, index: int) -> np.ndarray:
         psi = self.states.psi(index)
-        return psi if self.sign > 0 else psi[::-1]
+        return psi if self.sign > 0 else psi[..., ::-1]
 
     def snapshots(self):
         for t, psi in self.states.snapshots():
-            yield t, (psi if self.sign > 0 else psi[::-1])
+            yield t, (psi if self.sign > 0 else psi[..., ::-1])
 
 
 # ----------------------------------------------------------------------------------------
 # Per-snapshot statistics of the two sides
+
+
+def density(psi) -> np.ndarray:
+    """|ψ|² on the grid, summed over a leading spin-component axis: what a detector
+    blind to spin sees (PHYSICS §Larmor: the ordinary delays of a spinor run)."""
+    rho = np.abs(psi) ** 2
+    return rho if rho.ndim == 1 else rho.reshape(-1, rho.shape[-1]).sum(axis=0)
 
 
 def side_stats(x, density, dx, mask) -> tuple[float, float, float]:
@@ -138,10 +146,10 @@ def snapshot_stats(run: ForwardRun) -> dict:
         run.x > run.x[-1] - 0.03 * (run.x[-1] - run.x[0]))
     rows = []
     for _, psi in run.snapshots():
-        density = np.abs(psi) ** 2
-        rows.append(side_stats(run.x, density, run.dx, left)
-                    + side_stats(run.x, density, run.dx, right)
-                    + (float(density.sum() * run.dx), float(density[edge].sum() * run.dx)))
+        rho = density(psi)
+        rows.append(side_stats(run.x, rho, run.dx, left)
+                    + side_stats(run.x, rho, run.dx, right)
+                    + (float(rho.sum() * run.dx), float(rho[edge].sum() * run.dx)))
     a = np.array(rows).reshape(-1, 8)
     return {"P_out": a[:, 0], "x_out": a[:, 1], "w_out": a[:, 2], "P_tr": a[:, 3],
             "x_tr": a[:, 4], "w_tr": a[:, 5], "norm": a[:, 6], "edge": a[:, 7]}

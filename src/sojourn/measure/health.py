@@ -86,8 +86,9 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
                             "around the periodic box; enlarge the box or add an absorber")
     # probability outside the packet's k-band (spurious high-k components)
     psi = run.psi(len(run.times) - 1)
-    spectrum = np.abs(np.fft.fft(psi)) ** 2
-    kgrid = np.abs(2 * math.pi * np.fft.fftfreq(len(psi), d=run.dx))
+    spectrum = np.abs(np.fft.fft(psi, axis=-1)) ** 2
+    spectrum = spectrum.reshape(-1, spectrum.shape[-1]).sum(axis=0)   # spin components add
+    kgrid = np.abs(2 * math.pi * np.fft.fftfreq(psi.shape[-1], d=run.dx))
     band = np.abs(kgrid - info.k0) <= K_SPAN * info.sigma_k
     shift = 2 * m * (run.level_out - info.level) / hbar ** 2
     edges = [max(info.k0 - K_SPAN * info.sigma_k, 0.0), info.k0 + K_SPAN * info.sigma_k]
@@ -96,7 +97,8 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
     # per unit incident probability (Parseval: Σ|ψ̃|² = N Σ|ψ|²), not per unit of what
     # is left: after a long run the little left in the box need not be in the band
     incident = float(run.observables["norm"][0])
-    outside = float(spectrum[~band].sum() * run.dx / len(psi) / incident) if incident > 0 else 0.0
+    outside = float(spectrum[~band].sum() * run.dx / psi.shape[-1] / incident) if incident > 0 \
+        else 0.0
     if outside > OUT_OF_BAND_WARN:
         warnings.append(f"{outside:.2g} of the incident probability lies outside the packet's k-band "
                         f"(k₀ ± {K_SPAN:g}σ_k): spurious components, from a time step too large "

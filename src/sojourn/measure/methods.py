@@ -22,7 +22,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..model import packets
-from .frame import ForwardRun, separated, side_stats, snapshot_stats
+from .frame import ForwardRun, density, separated, side_stats, snapshot_stats
 from .health import LOST_WARN
 from .report import MethodResult, Spectrum
 from .spectra import (channel_spectrum, incident_amplitude, mean_arrival, outgoing_wavenumber,
@@ -231,7 +231,7 @@ def arrival(run: ForwardRun, channel: str, ctx: ChannelContext) -> Optional[Meth
     # what has not passed the detector by the end: between it and the potential
     between = (run.x > xd) & (run.x < run.x_r) if channel == "reflection" else \
         (run.x > run.x_t) & (run.x < xd)
-    last = np.abs(run.psi(len(run.times) - 1)[between]) ** 2
+    last = density(run.psi(len(run.times) - 1))[between]
     missing = float(last.sum() * run.dx)
     own, theirs = tail_shift(tw, fw, missing), tail_shift(tw, ref_flux, 0.0)
     tail = abs(fw[-1]) / max(float(np.max(np.abs(fw))), 1e-300)
@@ -290,7 +290,7 @@ def centroid_against_reference_run(run, ref, stats, usable, channel, warnings):
     t = run.times[usable]
     rt = ref.times
     everywhere = np.ones_like(ref.x, bool)
-    centres = np.array([side_stats(ref.x, np.abs(psi) ** 2, ref.dx, everywhere)[1]
+    centres = np.array([side_stats(ref.x, density(psi), ref.dx, everywhere)[1]
                         for _, psi in ref.snapshots()])
     edge = float(np.max(snapshot_stats(ref)["edge"]))
     if edge > LOST_WARN:

@@ -101,10 +101,11 @@ class ChannelReport:
     detector: Optional[float] = None
     snapshots_used: int = 0
     spectrum: Optional[Spectrum] = None
+    larmor: Optional[dict] = None       # a spinor run's clock (measure.larmor.larmor_entry)
 
     def to_dict(self, dwell: dict) -> dict:
         f = finite_or_none
-        return {
+        out = {
             "probability": f(self.probability),
             "measured": {m: r.to_dict() for m, r in self.measured.items()},
             "theory": {"wigner": f(self.wigner), "packet": f(self.packet),
@@ -115,6 +116,20 @@ class ChannelReport:
             "reference": "filtered" if self.filtered else "free",
             "detector": f(self.detector), "snapshots_used": self.snapshots_used,
         }
+        if self.larmor is not None:
+            out["larmor"] = _strict(self.larmor)
+        return out
+
+
+def _strict(value):
+    """A nested block with every number made JSON-strict (None for NaN)."""
+    if isinstance(value, dict):
+        return {k: _strict(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_strict(v) for v in value]
+    if isinstance(value, (bool, str)) or value is None:
+        return value
+    return finite_or_none(value)
 
 
 @dataclass

@@ -62,8 +62,12 @@ def channel_spectrum(run: ForwardRun, psi, t: float, channel: str, k) -> tuple:
             mask = run.x > run.x_t
             q = outgoing_wavenumber(run, k)
             dq_dk = np.where(q > 0, k / np.where(q > 0, q, 1.0), np.nan)
-        c, dc = momentum_amplitude(run.x[mask], psi[mask], q, run.dx)
-        dphase_c = np.imag(dc / c) * dq_dk          # d arg C(q(k)) / dk
+        # spin components add their probabilities, and their phase slopes weighted by them
+        rows = np.asarray(psi)[..., mask].reshape(-1, int(np.count_nonzero(mask)))
+        parts = [momentum_amplitude(run.x[mask], row, q, run.dx) for row in rows]
+        c2 = sum(np.abs(c) ** 2 for c, _ in parts)
+        dphase_c = np.imag(sum(np.conj(c) * dc for c, dc in parts)) / c2 * dq_dk  # d arg C/dk
+        c = np.sqrt(c2)
         if channel == "reflection":
             dphi = dphase_c - 2 * run.x_r + hbar * k * t / m - da_phase
             prob = np.abs(c) ** 2 / np.abs(a) ** 2

@@ -9,6 +9,7 @@ from .options import (CURVES, DEFAULT_CURVES, figure_size, parse_curves, parse_s
                       parse_xlim)
 from .overlays import (centroid_delay, direction, phase_delay, energy_spectrum, mirror_reference,
                        reference_trajectory, side_centroid, turning_time)
+from .spin import SpinSummed, clock_panels, spin_summed
 from .styles import LOOKS, STYLES, Look
 
 __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "LOOKS", "Look", "MovieOptions",
@@ -16,4 +17,5 @@ __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "LOOKS", "Look", "MovieOptions"
            "figure_size", "direction", "mirror_reference", "reference_trajectory",
            "centroid_delay", "turning_time", "side_centroid", "energy_spectrum",
            "render_movie", "render_figure", "figure", "space_time", "outgoing_trajectory",
-           "phase_delay", "MovieFrame", "Scan", "scan_run", "Ruler", "reflection_ruler", "run_facts", "open_encoder"]
+           "phase_delay", "MovieFrame", "Scan", "scan_run", "Ruler", "reflection_ruler", "run_facts", "open_encoder",
+           "SpinSummed", "spin_summed", "clock_panels"]

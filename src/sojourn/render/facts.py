@@ -36,6 +36,8 @@ class RunFacts:
     scheme: str = "strang"
     single: bool = False
     far_edge: float = 0.0          # where the potential ends on the transmission side
+    components: Optional[np.ndarray] = None   # a spinor run's V per component (2, N); V is their mean
+    clock: Optional[tuple] = None  # a spinor run's Larmor clock: ((start, end), ω_L)
 
 
 def run_facts(run: RunFile) -> RunFacts:
@@ -55,15 +57,27 @@ def run_facts(run: RunFile) -> RunFacts:
         title = str(attrs.get("title", ""))
     support = potential.support() if potential is not None else None
     edge = run.reference if support is None else (support[1] if info.k0 >= 0 else support[0])
+    V = run.V
+    components, clock = (V, _clock(scenario, potential)) if V.ndim > 1 else (None, None)
     return RunFacts(title=str(title or attrs.get("title", "")), units=run.units,
                     hbar=float(attrs["hbar"]), mass=float(attrs["mass_internal"]),
-                    packet=info, reference=run.reference, x=x, V=run.V,
+                    packet=info, reference=run.reference, x=x,
+                    V=V if components is None else V.mean(axis=0),
                     inner=(float(free[0]), float(free[-1])), times=run.times,
                     analysis=run.analysis(), scenario=scenario, potential=potential,
                     scattering=not confining and info.k0 != 0, absorber=W,
                     dt=float(attrs.get("dt", 0.0)), scheme=str(attrs.get("scheme", "strang")),
                     single=str(attrs.get("precision", "double")) == "single",
-                    far_edge=float(edge))
+                    far_edge=float(edge), components=components, clock=clock)
+
+
+def _clock(scenario, potential):
+    """((start, end), ω_L) of a spinor run's clock (None when its scenario cannot say)."""
+    spec = getattr(scenario, "larmor", None)
+    if spec is None or potential is None:
+        return None
+    region = spec.region if spec.region is not None else potential.support()
+    return None if region is None else ((float(region[0]), float(region[1])), float(spec.omega))
 
 
 def open_run(path) -> RunFile:

@@ -27,6 +27,7 @@ from .overlays import (action_window, direction, incident_bounds, reference_traj
                        side_centroid, turning_time)
 from .channels import transmission_ruler, transmitted_reference, untrusted_channels
 from .scan import Ruler, Scan, channel_gain, reflection_ruler, scan_run
+from .spin import SpinSummed, clock_panels, shade_clock
 from .styles import Look, apply_look, fit_inside, look as get_look
 
 MAP_COLUMNS = 1200         # space–time map resolution caps (bins, not pixels of output)
@@ -153,16 +154,19 @@ def figure(path, options: FigureOptions = FigureOptions()):
     look = get_look(options.style)
     with open_run(path) as run:
         facts = run_facts(run)
-        scan = scan_run(run, facts)
+        reader = SpinSummed(run) if facts.components is not None else run   # spinor: Σ|ψ±|²
+        scan = scan_run(reader, facts)
         span = window(facts, options.xlim, action_window(
             facts.x, np.maximum(scan.peak, scan.reference_peak),
             facts.V if facts.scattering else None, facts.inner, facts.packet.width))
-        st = space_time(run, facts, span)
+        st = space_time(reader, facts, span)
     ruler = reflection_ruler(scan, facts) if facts.scattering else None
     ruler_t = transmission_ruler(scan, facts) if facts.scattering else None
     doubt = untrusted_channels(facts.analysis)
     analysed = bool(channels(facts.analysis))
-    ratios = [1.5] + [0.75] * (bool(ruler) + bool(ruler_t)) + ([1.25] if analysed else [])
+    clocks = facts.clock is not None and facts.scattering   # a spinor run: the clocks panel
+    ratios = [1.5] + [0.75] * (bool(ruler) + bool(ruler_t)) + ([1.25] if analysed else []) \
+        + ([1.25] if clocks else [])
     size = figure_size(options.size, options.dpi) if options.size else \
         (2.9 * sum(ratios) + 0.6, 4.6)
     # type and lines scale with the page (a 7-inch-wide page of panels is the norm)
@@ -213,6 +217,8 @@ def figure(path, options: FigureOptions = FigureOptions()):
                         " (untrusted)" if "transmission" in doubt else ""),
                     gid="transmitted-centroid")
         ax.axvline(facts.reference, color=look.reference, linewidth=0.5 * lw, linestyle=":")
+        if clocks:
+            shade_clock(ax, facts, look)
         if gain > 1:
             ax.text(0.98, 0.02, f"far side ×{gain:.0e}".replace("e+0", "e"),
                     transform=ax.transAxes, ha="right", va="bottom", color=look.transmitted,
@@ -254,6 +260,13 @@ def figure(path, options: FigureOptions = FigureOptions()):
         upper = fig.add_subplot(cell[0])
         lower = fig.add_subplot(cell[1], sharex=upper)
         delay_panels(upper, lower, facts, look, font, lw)
+        axes += [upper, lower]
+        column += 1
+    if clocks:
+        cell = cells[column].subgridspec(2, 1)
+        upper = fig.add_subplot(cell[0])
+        lower = fig.add_subplot(cell[1], sharex=upper)
+        clock_panels((upper, lower), facts, look, font, lw)
         axes += [upper, lower]
     apply_look(fig, axes, look, font)
     fit_inside(fig)

@@ -52,7 +52,8 @@ def propagated_states(run: RunFile, facts: RunFacts, wanted: np.ndarray
         raise RenderError(f"{run.path}: the run file records no time step; it cannot be "
                           "propagated between snapshots")
     times = facts.times
-    prop = Propagator(grid_of(facts.x), facts.V, facts.hbar, facts.mass, facts.dt, facts.scheme,
+    V = facts.V if facts.components is None else facts.components   # a spinor: one per component
+    prop = Propagator(grid_of(facts.x), V, facts.hbar, facts.mass, facts.dt, facts.scheme,
                       facts.absorber, single=facts.single)
     wanted = np.asarray(wanted, float)
     nearest = np.searchsorted(times, wanted + 1e-9 * max(facts.dt, 1e-300), side="right") - 1

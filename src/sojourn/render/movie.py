@@ -32,6 +32,7 @@ from .overlays import action_window, direction, mirror_reference
 from .channels import thin_span, transmission_ruler, untrusted_channels
 from .panels import ChannelZoom, TrueWidth
 from .scan import Scan, channel_gain, reflection_ruler, scan_run
+from .spin import SpinArrows, SpinSummed, shade_clock, spin_summed
 from .styles import apply_look, fit_inside, look as get_look
 
 
@@ -170,6 +171,11 @@ class MovieFrame:
             ax2.patch.set_facecolor(look.background)
         handles = []
         zeros = np.zeros_like(self.xs)
+        self.spin = None
+        if facts.clock is not None:     # a spinor run: the field region and the spin arrows
+            handles.append(shade_clock(ax, facts, look))
+            self.spin = SpinArrows(ax, facts, look, font, lw)
+            self.moving += self.spin.artists
         if "phase" in curves:
             self.phase_rows = max(64, int(0.70 * height / 2))
             self.phase_heights = (np.arange(self.phase_rows) + 0.5) / self.phase_rows * top
@@ -253,6 +259,8 @@ class MovieFrame:
                                     untrusted=kind in self.untrusted)
                 axes.append(panel_ax)
             self.panels.append(panel)
+            if kind == "thin" and facts.clock is not None:   # the field region at true width
+                shade_clock(panel_ax, facts, look, label=False)
         apply_look(fig, axes, look, font)
         for panel in self.panels:   # side panels: smaller labels than the main one
             panel.ax.xaxis.label.set_fontsize(0.7 * font)
@@ -272,6 +280,9 @@ class MovieFrame:
         """Update the moving artists for (t, ψ) and return the frame, H×W×4 RGBA
         uint8 (the canvas buffer itself; valid until the next call)."""
         f = self.facts
+        if self.spin is not None:   # a spinor's arrows
+            self.spin.update(psi)
+        psi = spin_summed(psi)      # a spinor drawn spin-summed (a scalar ψ passes unchanged)
         full = psi
         psi = psi[self.index]
         density = psi.real ** 2 + psi.imag ** 2
@@ -334,7 +345,8 @@ def render_movie(path, output, options: MovieOptions = MovieOptions(),
             states, total = propagated_states(run, facts, wanted), len(wanted)
         else:
             states, total = run.snapshots(), len(run)
-        frame = MovieFrame(facts, options, scan_run(run, facts))
+        scanned = SpinSummed(run) if facts.components is not None else run
+        frame = MovieFrame(facts, options, scan_run(scanned, facts))
         writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
         done = 0
         try:

@@ -20,6 +20,9 @@ Re ψ, Im ψ          #2f5fb3 blue,  #7aa6ff,       thin lines (scaled to the de
 The three delay methods, where a figure sets them side by side (the sweep
 summary): centroid #c8401e red (circle), arrival #2f5fb3 blue (square),
 spectral #5d7a1e olive (diamond); each method's prediction in its colour.
+The tunnelling clocks side by side (a spinor run's figure): phase time #2f5fb3
+blue, dwell #8c7a5b sand (both dashed), τ_y #0b6e69 teal, τ_z #b36b00 ochre,
+τ #7a2e6e plum; the field region is shaded in the theory colour.
 
 Maps: cividis (paper), bone (talk); phase as hue: twilight, with its key.
 Type: DejaVu Sans (ships with matplotlib, so every machine draws the same
@@ -77,6 +80,8 @@ TALK_LIGHT = Look(**{**PAPER.__dict__, "font": 26, "line": 4.0})
 
 METHOD_COLOURS = {"centroid": "#c8401e", "arrival": "#2f5fb3", "spectral": "#5d7a1e"}
 METHOD_MARKERS = {"centroid": "o", "arrival": "s", "spectral": "D"}
+CLOCK_COLOURS = {"phase": "#2f5fb3", "dwell": "#8c7a5b", "tau_y": "#0b6e69", "tau_z": "#b36b00",
+                 "tau": "#7a2e6e"}
 
 LOOKS = {"talk-dark": TALK, "talk-light": TALK_LIGHT, "paper": PAPER, "talk": TALK}
 STYLES = ("talk-dark", "talk-light", "paper", "talk")
