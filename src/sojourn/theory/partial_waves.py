@@ -1,0 +1,317 @@
+"""Two-dimensional partial waves for a circularly symmetric potential V(r)
+(PHYSICS §Partial waves): exact phase shifts δ_m(E) and their analytic energy
+derivatives for piecewise-constant shells, the scattering amplitude f(θ),
+the differential cross section |f|², the partial-wave delays 2ħ dδ_m/dE and the
+angle-resolved delay τ(θ, E) = ħ ∂ arg f/∂E.
+
+Conventions. ψ ~ e^{ikx} + f(θ) e^{ikr}/√r, E = ħ²k²/2m (V = 0 beyond the
+last shell), θ from +x,
+
+    f(θ) = √(2/(πk)) e^{iπ/4} Σ_{m=−∞}^{∞} e^{iδ_m} sin δ_m e^{imθ},   δ_{−m} = δ_m,
+
+and τ(θ) is relative to a free outgoing wave that leaves the centre when the
+free incident packet's centre passes it. Shells are [(r_1, V_1), (r_2, V_2), …]
+with 0 < r_1 < r_2 < …: V = V_j for r_{j−1} < r < r_j. A height of +inf is a
+hard core (ψ = 0 inside its radius). Energies are in the caller's units.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable, Sequence
+
+import numpy as np
+from scipy import special
+
+from ..errors import TheoryError
+
+M_CAP = 4000                # the largest m_max ever tried
+TAIL_TOL = 1e-13            # |sin δ_m| of the last partial waves kept, relative
+LEVEL_GAP = 1e-9            # an energy this close (relative) to a shell level is nudged
+SERIES_TERMS = 80           # terms of the regular solution's series (innermost shell)
+
+
+def check_shells(shells) -> tuple[np.ndarray, np.ndarray]:
+    """(radii, heights) of a shell list, checked: increasing positive finite
+    radii, finite heights or +inf (a hard core)."""
+    try:
+        pairs = [(float(r), float(v)) for r, v in shells]
+    except (TypeError, ValueError):
+        raise TheoryError("shells must be a list of (radius, height) pairs of numbers") from None
+    if not pairs:
+        raise TheoryError("shells must hold at least one (radius, height) pair")
+    radii = np.array([p[0] for p in pairs])
+    heights = np.array([p[1] for p in pairs])
+    if not (np.all(np.isfinite(radii)) and radii[0] > 0 and np.all(np.diff(radii) > 0)):
+        raise TheoryError(f"shell radii must be finite, positive and increasing (got "
+                          f"{radii.tolist()})")
+    if np.any(np.isnan(heights)) or np.any(heights == -np.inf):
+        raise TheoryError(f"shell heights must be finite numbers or +inf (got {heights.tolist()})")
+    return radii, heights
+
+
+def sliced_shells(profile: Callable, radius: float, count: int) -> list[tuple[float, float]]:
+    """A smooth profile V(r) on [0, radius] as `count` equal shells holding
+    its midpoint values (V = 0 beyond `radius`); the phase shifts converge as
+    count^−2 (PHYSICS §Partial waves)."""
+    if not (isinstance(count, (int, np.integer)) and count >= 1):
+        raise TheoryError(f"count must be a positive integer (got {count!r})")
+    if not (math.isfinite(radius) and radius > 0):
+        raise TheoryError(f"radius must be finite and positive (got {radius!r})")
+    edges = np.linspace(0.0, radius, count + 1)
+    values = np.asarray(profile(0.5 * (edges[1:] + edges[:-1])), dtype=float)
+    if values.shape != (count,) or not np.all(np.isfinite(values)):
+        raise TheoryError("the profile must give one finite value per radius")
+    return [(float(r), float(v)) for r, v in zip(edges[1:], values)]
+
+
+def _check_positive(**values) -> None:
+    for name, v in values.items():
+        if not (isinstance(v, (int, float, np.floating)) and math.isfinite(v) and v > 0):
+            raise TheoryError(f"{name} must be a finite positive number (got {v!r})")
+
+
+@dataclass(frozen=True)
+class PhaseShifts:
+    """Phase shifts δ_m (mod π, in [−π/2, π/2)) and dδ_m/dE at an array of
+    energies, m = 0 … m_max (δ_{−m} = δ_m); rows index energies."""
+
+    energy: np.ndarray
+    k: np.ndarray
+    m: np.ndarray
+    delta: np.ndarray
+    ddelta_dE: np.ndarray
+    hbar: float
+    mass: float
+
+    @property
+    def partial_delays(self) -> np.ndarray:
+        """The partial-wave delays 2ħ dδ_m/dE (Eisenbud–Wigner)."""
+        return 2 * self.hbar * self.ddelta_dE
+
+    @property
+    def total_cross_section(self) -> np.ndarray:
+        """σ = (4/k) Σ_{all m} sin²δ_m (a length in 2D)."""
+        s2 = np.sin(self.delta) ** 2
+        return 4 / self.k * (s2[:, 0] + 2 * s2[:, 1:].sum(axis=1))
+
+    def _sums(self, theta) -> tuple[np.ndarray, np.ndarray]:
+        """S(θ) = Σ e^{iδ}sin δ e^{imθ} and dS/dE over all m, shape (energies, θ)."""
+        theta = np.atleast_1d(np.asarray(theta, dtype=float))
+        if not np.all(np.isfinite(theta)):
+            raise TheoryError("angles must be finite numbers (radians)")
+        weight = np.where(self.m == 0, 1.0, 2.0)[:, None] * np.cos(np.outer(self.m, theta))
+        a = np.exp(1j * self.delta) * np.sin(self.delta)
+        da = self.ddelta_dE * np.exp(2j * self.delta)
+        return a @ weight, da @ weight
+
+    def amplitude(self, theta) -> np.ndarray:
+        """f(θ) at every energy (rows) and angle (columns)."""
+        S, _ = self._sums(theta)
+        return np.sqrt(2 / (np.pi * self.k))[:, None] * np.exp(0.25j * np.pi) * S
+
+    def cross_section(self, theta) -> np.ndarray:
+        """dσ/dθ = |f(θ)|² (a length per radian)."""
+        S, _ = self._sums(theta)
+        return (2 / (np.pi * self.k))[:, None] * np.abs(S) ** 2
+
+    def delay(self, theta) -> np.ndarray:
+        """τ(θ) = ħ ∂ arg f/∂E = ħ Im(S_E/S) (the prefactor √(2/πk) is real);
+        NaN where f = 0."""
+        S, dS = self._sums(theta)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(S != 0, self.hbar * np.imag(dS / S), np.nan)
+
+    def weighted_delay(self, theta) -> np.ndarray:
+        """|f|²·τ = (2ħ/πk) Im(S* S_E), smooth through zeros of f (packet averages)."""
+        S, dS = self._sums(theta)
+        return (2 * self.hbar / (np.pi * self.k))[:, None] * np.imag(np.conj(S) * dS)
+
+
+def _bessel(kind: str, m, z):
+    """Z, Z', Z'' of kind J, Y (argument z) or the scaled I·e^{−z}, K·e^{z}
+    with their scaled derivatives I'·e^{−z}, I''·e^{−z} (and K alike)."""
+    if kind == "J":
+        f, f1 = special.jv(m, z), special.jvp(m, z)
+        return f, f1, -f1 / z - (1 - m ** 2 / z ** 2) * f
+    if kind == "Y":
+        f, f1 = special.yv(m, z), special.yvp(m, z)
+        return f, f1, -f1 / z - (1 - m ** 2 / z ** 2) * f
+    if kind == "I":
+        f, f1 = special.ive(m, z), 0.5 * (special.ive(m - 1, z) + special.ive(m + 1, z))
+    else:
+        f, f1 = special.kve(m, z), -0.5 * (special.kve(m - 1, z) + special.kve(m + 1, z))
+    return f, f1, -f1 / z + (1 + m ** 2 / z ** 2) * f
+
+
+def _regular_series(m, Q, dQ, b):
+    """Log-derivative L = R'/R of the regular solution at r = b and dL/dE from
+    its power series in s = −Q b²/4 (Q = q², signed; dQ = dQ/dE): exact and
+    free of under/overflow where |s| ≤ m + 1."""
+    s = -Q * b * b / 4
+    c = np.ones(np.broadcast(m, s).shape)
+    B, A, A1 = c.copy(), np.zeros_like(c), np.zeros_like(c)   # Σc s^k, Σk c s^k, Σk² c s^(k−1)
+    sk1 = np.ones_like(c)                                    # s^(k−1)
+    for k in range(1, SERIES_TERMS):
+        c = c / (k * (m + k))
+        term = c * sk1
+        A1 = A1 + k * k * term
+        term = term * s
+        B, A = B + term, A + k * term
+        sk1 = sk1 * s
+    L = (m + 2 * A / B) / b
+    B1 = np.where(s != 0, A / np.where(s != 0, s, 1), 1.0 / (m + 1))
+    dL = 2 / b * (A1 * B - A * B1) / B ** 2 * (-dQ * b * b / 4)
+    return L, dL
+
+
+def _radial(kind, m, q, dq, r, low, high):
+    """Values and E-derivatives of a solution and its r-derivative at radius r:
+    (F, F', ∂F/∂E, ∂F'/∂E). J, Y unscaled; I scaled by e^{−q·high}, K by
+    e^{q·low} (one E-dependent factor per shell: the matching ignores it)."""
+    z = q * r
+    f, f1, f2 = _bessel(kind, m, z)
+    if kind in "JY":
+        g, s0 = 1.0, 0.0
+    elif kind == "I":
+        g, s0 = np.exp(q * (r - high)), high
+    else:
+        g, s0 = np.exp(-q * (r - low)), -low
+    # the factor e^{−q·s0} of I and K is differentiated too (the −s0 terms)
+    val = g * f
+    der = g * q * f1
+    dval = g * dq * (r * f1 - s0 * f) if kind in "IK" else dq * r * f1
+    dder = (g * dq * (f1 + q * r * f2 - s0 * q * f1)) if kind in "IK" else \
+        dq * (f1 + q * r * f2)
+    return val, der, dval, dder
+
+
+def _solve(radii, heights, E, m, hbar, mass):
+    """δ_m(E), dδ_m/dE for arrays E (column) and m (row), no level exactly at E."""
+    c = 2 * mass / hbar ** 2
+    k = np.sqrt(c * E)
+    shape = np.broadcast(E, m).shape
+    core = np.nonzero(np.isinf(heights))[0]
+    start = int(core[-1]) + 1 if core.size else 0
+    if core.size:          # a hard core: R = 0 at its radius
+        u, p = np.zeros(shape), np.ones(shape)
+        du, dp = np.zeros(shape), np.zeros(shape)
+    for j in range(start, len(radii)):
+        b, V = radii[j], heights[j]
+        a = radii[j - 1] if j > 0 else 0.0
+        Q = c * (E - V) + 0.0 * m
+        q = np.sqrt(np.abs(Q))
+        dq = c / (2 * q) * np.sign(Q)          # d|q|/dE (κ falls as E rises)
+        if j == start and not core.size:
+            series = np.abs(Q) * b * b / 4 <= m + 1
+            L, dL = _regular_series(m, Q, c, b)
+            kind = np.where(Q > 0, "J", "I")
+            with np.errstate(all="ignore"):
+                vJ = _radial("J", m, q, dq, b, 0.0, b)
+                vI = _radial("I", m, q, dq, b, 0.0, b)
+            u, p, du, dp = (np.where(series, s, np.where(kind == "J", x, y))
+                            for s, x, y in zip((1.0, L, 0.0, dL), vJ, vI))
+            continue
+        out = []
+        for kinds, w in ((("J", "Y"), 2 / (np.pi * a)), (("I", "K"), -1 / a)):
+            with np.errstate(all="ignore"):
+                Fa, Fb = (_radial(kinds[0], m, q, dq, r, a, b) for r in (a, b))
+                Ga, Gb = (_radial(kinds[1], m, q, dq, r, a, b) for r in (a, b))
+            out.append(_transfer(Fa, Fb, Ga, Gb, w, u, p, du, dp))
+        u, p, du, dp = (np.where(Q > 0, x, y) for x, y in zip(*out))
+        scale = 1 / np.maximum(np.abs(u), np.abs(p))
+        u, p, du, dp = u * scale, p * scale, du * scale, dp * scale
+    R = radii[-1]
+    J, J1, J2 = _bessel("J", m, k * R)
+    Y, Y1, Y2 = _bessel("Y", m, k * R)
+    dk = c / (2 * k)
+    N = u * k * J1 - p * J
+    D = u * k * Y1 - p * Y
+    dN = du * k * J1 + u * dk * (J1 + k * R * J2) - dp * J - p * R * dk * J1
+    dD = du * k * Y1 + u * dk * (Y1 + k * R * Y2) - dp * Y - p * R * dk * Y1
+    delta = np.arctan2(N, D)
+    delta = (delta + 0.5 * np.pi) % np.pi - 0.5 * np.pi
+    ddelta = (dN * D - N * dD) / (N ** 2 + D ** 2)
+    if not (np.all(np.isfinite(delta)) and np.all(np.isfinite(ddelta))):
+        raise TheoryError("a partial wave is too deep beneath the centrifugal barrier of an "
+                          "inner shell to be computed; use fewer, thicker inner shells or a "
+                          "smaller m_max")
+    return delta, ddelta
+
+
+def _transfer(Fa, Fb, Ga, Gb, w, u, p, du, dp):
+    """(u, p) at the shell's outer radius from (u, p) at its inner one, with
+    E-derivatives: R(b) = [u(G'_a F_b − F'_a G_b) + p(F_a G_b − G_a F_b)]/W(a)."""
+    (f, f1, df, df1), (F, F1, dF, dF1) = Fa, Fb
+    (g, g1, dg, dg1), (G, G1, dG, dG1) = Ga, Gb
+    t11, t12 = (g1 * F - f1 * G) / w, (f * G - g * F) / w
+    t21, t22 = (g1 * F1 - f1 * G1) / w, (f * G1 - g * F1) / w
+    d11 = (dg1 * F + g1 * dF - df1 * G - f1 * dG) / w
+    d12 = (df * G + f * dG - dg * F - g * dF) / w
+    d21 = (dg1 * F1 + g1 * dF1 - df1 * G1 - f1 * dG1) / w
+    d22 = (df * G1 + f * dG1 - dg * F1 - g * dF1) / w
+    return (t11 * u + t12 * p, t21 * u + t22 * p,
+            d11 * u + d12 * p + t11 * du + t12 * dp, d21 * u + d22 * p + t21 * du + t22 * dp)
+
+
+def _m_start(radii, heights, E, c) -> int:
+    finite = heights[np.isfinite(heights)]
+    q_max = math.sqrt(c * max(float(np.max(E)), float(np.max(E)) - float(np.min(finite, initial=0.0))))
+    x = q_max * radii[-1]
+    return int(math.ceil(x + 6 * x ** (1 / 3) + 10))
+
+
+def phase_shifts(shells, energies, *, hbar: float = 1.0, mass: float = 1.0,
+                 m_max: int | None = None) -> PhaseShifts:
+    """Exact 2D phase shifts δ_m(E) and dδ_m/dE for a shell potential.
+
+    Matching Bessel functions (J_m, Y_m where E > V; scaled I_m, K_m where
+    E < V; the regular solution's series in the innermost shell) at every
+    radius, differentiated forward-mode in E; outside, tan δ_m =
+    [kJ'_m u − J_m u']/[kY'_m u − Y_m u'] at the last radius. m_max (default:
+    grown from k·a + 6(k·a)^{1/3} + 10 until the last two |sin δ_m| are below
+    1e-13 of the largest) sets the partial waves kept. An energy within 1e-9
+    (relative) of a shell level is the mean of two nudged ones.
+    """
+    radii, heights = check_shells(shells)
+    _check_positive(hbar=hbar, mass=mass)
+    E = np.atleast_1d(np.asarray(energies, dtype=float)).ravel()
+    if E.size == 0 or not np.all(np.isfinite(E)) or np.any(E <= 0):
+        raise TheoryError("energies must be finite and positive (V = 0 outside the shells)")
+    if m_max is not None and not (isinstance(m_max, (int, np.integer)) and 0 <= m_max <= M_CAP):
+        raise TheoryError(f"m_max must be an integer in 0…{M_CAP} (got {m_max!r})")
+    c = 2 * mass / hbar ** 2
+    top = m_max if m_max is not None else min(_m_start(radii, heights, E, c), M_CAP)
+    while True:
+        m = np.arange(top + 1)
+        delta, ddelta = _nudged(radii, heights, E, m, hbar, mass)
+        s = np.abs(np.sin(delta))
+        tail = s[:, -2:].max() if top >= 1 else 0.0
+        if m_max is not None or tail <= TAIL_TOL * max(s.max(), 1e-300) or top >= M_CAP:
+            break
+        top = min(int(1.5 * top) + 5, M_CAP)
+    return PhaseShifts(E, np.sqrt(c * E), m, delta, ddelta, float(hbar), float(mass))
+
+
+def _nudged(radii, heights, E, m, hbar, mass):
+    """_solve, with energies at a shell level replaced by the mean of E(1 ± h)."""
+    levels = heights[np.isfinite(heights)]
+    near = np.zeros(E.shape, bool)
+    for V in levels:
+        near |= np.abs(E - V) <= LEVEL_GAP * np.maximum(np.abs(E), abs(V))
+    Ec = E[:, None]
+    if not near.any():
+        return _solve(radii, heights, Ec, m, hbar, mass)
+    h = 1e-5 * E[:, None]
+    lo = _solve(radii, heights, np.where(near[:, None], Ec - h, Ec), m, hbar, mass)
+    hi = _solve(radii, heights, np.where(near[:, None], Ec + h, Ec), m, hbar, mass)
+    gap = (hi[0] - lo[0] + 0.5 * np.pi) % np.pi - 0.5 * np.pi       # the same branch
+    delta = (lo[0] + 0.5 * gap + 0.5 * np.pi) % np.pi - 0.5 * np.pi
+    return delta, 0.5 * (lo[1] + hi[1])
+
+
+def hard_disk_phase_shifts(radius: float, energies, *, hbar: float = 1.0, mass: float = 1.0,
+                           m_max: int | None = None) -> PhaseShifts:
+    """The impenetrable disk of `radius`: tan δ_m = J_m(ka)/Y_m(ka)."""
+    _check_positive(radius=radius)
+    return phase_shifts([(radius, math.inf)], energies, hbar=hbar, mass=mass, m_max=m_max)
