@@ -204,9 +204,9 @@ def _solve(radii, heights, E, m, hbar, mass):
         dq = c / (2 * q) * np.sign(Q)          # d|q|/dE (κ falls as E rises)
         if j == start and not core.size:
             series = np.abs(Q) * b * b / 4 <= m + 1
-            L, dL = _regular_series(m, Q, c, b)
             kind = np.where(Q > 0, "J", "I")
-            with np.errstate(all="ignore"):
+            with np.errstate(all="ignore"):      # each is used only where it is sound
+                L, dL = _regular_series(m, Q, c, b)
                 vJ = _radial("J", m, q, dq, b, 0.0, b)
                 vI = _radial("I", m, q, dq, b, 0.0, b)
             u, p, du, dp = (np.where(series, s, np.where(kind == "J", x, y))
