@@ -43,7 +43,10 @@ def mp_delta(m, E, shells):
     """δ_m(E) for shells by explicit matching: α F + β G continued shell by
     shell (a 2×2 solve at each inner radius), tan δ = (kJ'u − Ju')/(kY'u − Yu')."""
     E = mp.mpf(E)
-    u, p = _mp_basis(m, 2 * (E - shells[0][1]), shells[0][0])[0]
+    if math.isinf(shells[0][1]):        # a hard core: R = 0 at its radius
+        u, p = mp.mpf(0), mp.mpf(1)
+    else:
+        u, p = _mp_basis(m, 2 * (E - shells[0][1]), shells[0][0])[0]
     for (a, _), (b, V) in zip(shells[:-1], shells[1:]):
         (fa, fpa), (ga, gpa) = _mp_basis(m, 2 * (E - V), a)
         W = fa * gpa - fpa * ga
@@ -63,6 +66,7 @@ CASES = [
     ([(2.0, 0.0), (3.0, 1.5)], 0.5),             # a ring
     ([(2.0, -1.0), (2.5, 3.0), (4.0, 0.4)], 0.7),
     ([(1.0, 2.0), (2.0, 0.2), (3.0, 1.0)], 0.5),
+    ([(1.0, math.inf), (3.0, 1.0)], 0.5),        # a hard core inside a barrier
 ]
 
 
