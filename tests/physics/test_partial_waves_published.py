@@ -13,7 +13,8 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import minimize_scalar
 
 from sojourn.theory.angular_averages import packet_angular_prediction
-from sojourn.theory.partial_waves import hard_disk_phase_shifts, phase_shifts, sliced_shells
+from sojourn.theory.partial_waves import (hard_disk_phase_shifts, phase_shifts, sliced_shells,
+                                         smooth_phase_shifts)
 
 mp.mp.dps = 30
 
@@ -251,8 +252,13 @@ def test_a_sliced_gaussian_converges_as_count_squared_to_the_ode_solution():
         err.append(mod_pi(d - ref))
     assert np.all(np.abs(err[0]) > 1e-7)
     assert np.allclose(err[0] / err[1], 4.0, rtol=0.02)         # midpoint slicing: count⁻²
-    rich = (4 * (ref + err[1]) - (ref + err[0])) / 3
-    assert np.max(np.abs(mod_pi(rich - ref))) < 1e-7
+    rich = smooth_phase_shifts(profile, R, [E], count=100, m_max=3)
+    assert np.max(np.abs(mod_pi(rich.delta[0] - ref))) < 1e-7
+    # and the energy derivative, against a centred difference of the ODE's δ (h = 1e-4)
+    h = 1e-4
+    dref = [(_ode_delta(profile, R, E + h, m) - _ode_delta(profile, R, E - h, m)) / (2 * h)
+            for m in range(4)]
+    assert np.allclose(rich.ddelta_dE[0], dref, rtol=1e-6, atol=1e-7)
 
 
 # ---------------------------------------------------------------------------------------
