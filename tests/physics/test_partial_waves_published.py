@@ -37,7 +37,8 @@ def _mp_basis(m, Q, r):
                 (mp.bessely(m, q * r), q * mp.bessely(m, q * r, 1))]
     q = mp.sqrt(-Q)
     return [(mp.besseli(m, q * r), q * mp.besseli(m, q * r, 1)),
-            (mp.besselk(m, q * r), q * mp.diff(lambda z: mp.besselk(m, z), q * r))]
+            (mp.besselk(m, q * r),                     # K' = −(K_{m−1} + K_{m+1})/2 (DLMF 10.29.1)
+             -q * (mp.besselk(m - 1, q * r) + mp.besselk(m + 1, q * r)) / 2)]
 
 
 def mp_delta(m, E, shells):
@@ -74,7 +75,7 @@ CASES = [
 @pytest.mark.parametrize("shells,E", CASES)
 def test_phase_shifts_and_analytic_derivatives_match_an_mpmath_matching(shells, E):
     ps = phase_shifts(shells, [E])
-    for m in range(0, 16, 3):
+    for m in (0, 4, 11):
         ref = float(mp_delta(m, E, shells))
         dref = float(mp.diff(lambda x: mp_delta(m, x, shells), E))
         assert abs(mod_pi(ref - ps.delta[0, m])) < 1e-12

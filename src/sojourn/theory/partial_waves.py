@@ -128,20 +128,71 @@ class PhaseShifts:
         return (2 * self.hbar / (np.pi * self.k))[:, None] * np.imag(np.conj(S) * dS)
 
 
-def _bessel(kind: str, m, z):
-    """Z, Z', Z'' of kind J, Y (argument z) or the scaled I·e^{−z}, K·e^{z}
-    with their scaled derivatives I'·e^{−z}, I''·e^{−z} (and K alike)."""
+def _miller(z, top: int, sign: float) -> np.ndarray:
+    """Orders 0…top of J (sign −1) or I·e^{−z} (sign +1) at z (a vector) by
+    backward recurrence Z_{k−1} = (2k/z)Z_k + sign·Z_{k+1} from far above
+    (Miller), normalised by J₀ + 2ΣJ_{2k} = 1 or e^{−z}(I₀ + 2ΣI_k) = 1."""
+    big = max(top, float(np.max(z)))
+    start = int(big + math.sqrt(160 * big)) + 12
+    start += start % 2
+    out = np.zeros((z.size, top + 1))
+    above, here = np.zeros(z.size), np.full(z.size, 1e-280)
+    total = np.zeros(z.size)
+    for k in range(start, 0, -1):
+        below = (2 * k / z) * here + sign * above
+        above, here = here, below
+        if sign > 0 or (k - 1) % 2 == 0:
+            total += here if k - 1 == 0 else 2 * here
+        if k - 1 <= top:
+            out[:, k - 1] = here
+        high = np.abs(here) > 1e250
+        if high.any():                          # rescale what these rows hold so far
+            scale = np.where(high, 1e-250, 1.0)
+            above, here, total = above * scale, here * scale, total * scale
+            out *= scale[:, None]
+    return out / total[:, None]
+
+
+def _upward(z, top: int, f0, f1, sign: float) -> np.ndarray:
+    """Orders 0…top of Y (sign −1) or K·e^{z} (sign +1) by the forward
+    recurrence Z_{k+1} = (2k/z)Z_k + sign·Z_{k−1}, stable for these."""
+    out = np.empty((z.size, top + 1))
+    out[:, 0] = f0
+    if top >= 1:
+        out[:, 1] = f1
+    with np.errstate(over="ignore", invalid="ignore"):
+        for k in range(1, top):
+            out[:, k + 1] = (2 * k / z) * out[:, k] + sign * out[:, k - 1]
+    return out
+
+
+def _orders(kind: str, M: int, z) -> np.ndarray:
+    """Z for orders −1…M+1 (columns) at z (a column)."""
+    x = np.ravel(z)
     if kind == "J":
-        f, f1 = special.jv(m, z), special.jvp(m, z)
-        return f, f1, -f1 / z - (1 - m ** 2 / z ** 2) * f
-    if kind == "Y":
-        f, f1 = special.yv(m, z), special.yvp(m, z)
-        return f, f1, -f1 / z - (1 - m ** 2 / z ** 2) * f
-    if kind == "I":
-        f, f1 = special.ive(m, z), 0.5 * (special.ive(m - 1, z) + special.ive(m + 1, z))
+        F = _miller(x, M + 1, -1.0)
+    elif kind == "I":
+        F = _miller(x, M + 1, 1.0)
+    elif kind == "Y":
+        F = _upward(x, M + 1, special.y0(x), special.y1(x), -1.0)
     else:
-        f, f1 = special.kve(m, z), -0.5 * (special.kve(m - 1, z) + special.kve(m + 1, z))
-    return f, f1, -f1 / z + (1 + m ** 2 / z ** 2) * f
+        F = _upward(x, M + 1, special.k0e(x), special.k1e(x), 1.0)
+    minus = -F[:, 1] if kind in "JY" else F[:, 1]        # Z_{−1} = ∓Z_1
+    return np.column_stack([minus, F])
+
+
+def _bessel(kind: str, M: int, z):
+    """Z, Z', Z'' for orders 0…M (columns) at z (a column): J, Y, or the
+    scaled I·e^{−z}, K·e^{z} with I'·e^{−z}, I''·e^{−z} (and K alike); the
+    derivatives by the recurrences."""
+    F = _orders(kind, M, z)
+    f, m = F[:, 1:-1], np.arange(M + 1)
+    with np.errstate(over="ignore", invalid="ignore"):
+        if kind in "JY":
+            f1 = 0.5 * (F[:, :-2] - F[:, 2:])
+            return f, f1, -f1 / z - (1 - m ** 2 / z ** 2) * f
+        f1 = 0.5 * (F[:, :-2] + F[:, 2:]) * (1.0 if kind == "I" else -1.0)
+        return f, f1, -f1 / z + (1 + m ** 2 / z ** 2) * f
 
 
 def _regular_series(m, Q, dQ, b):
@@ -165,65 +216,79 @@ def _regular_series(m, Q, dQ, b):
     return L, dL
 
 
-def _radial(kind, m, q, dq, r, low, high):
+def _radial(kind, M, q, dq, r, low, high):
     """Values and E-derivatives of a solution and its r-derivative at radius r:
     (F, F', ∂F/∂E, ∂F'/∂E). J, Y unscaled; I scaled by e^{−q·high}, K by
     e^{q·low} (one E-dependent factor per shell: the matching ignores it)."""
-    z = q * r
-    f, f1, f2 = _bessel(kind, m, z)
+    f, f1, f2 = _bessel(kind, M, q * r)
     if kind in "JY":
-        g, s0 = 1.0, 0.0
-    elif kind == "I":
-        g, s0 = np.exp(q * (r - high)), high
-    else:
-        g, s0 = np.exp(-q * (r - low)), -low
+        return f, q * f1, dq * r * f1, dq * (f1 + q * r * f2)
     # the factor e^{−q·s0} of I and K is differentiated too (the −s0 terms)
-    val = g * f
-    der = g * q * f1
-    dval = g * dq * (r * f1 - s0 * f) if kind in "IK" else dq * r * f1
-    dder = (g * dq * (f1 + q * r * f2 - s0 * q * f1)) if kind in "IK" else \
-        dq * (f1 + q * r * f2)
-    return val, der, dval, dder
+    g, s0 = (np.exp(q * (r - high)), high) if kind == "I" else (np.exp(-q * (r - low)), -low)
+    return (g * f, g * q * f1, g * dq * (r * f1 - s0 * f),
+            g * dq * (f1 + q * r * f2 - s0 * q * f1))
 
 
-def _solve(radii, heights, E, m, hbar, mass):
-    """δ_m(E), dδ_m/dE for arrays E (column) and m (row), no level exactly at E."""
+def _regular_start(m, Q, q, dq, c, b, rows):
+    """(u, u', ∂u/∂E, ∂u'/∂E) at r = b of the regular solution of a constant
+    q² = Q from r = 0, for the energies `rows`: the series where |s| ≤ m + 1,
+    else J_m(qb) or the scaled I_m(κb)."""
+    Q, q, dq = Q[rows], q[rows], dq[rows]
+    M = int(m[0, -1])
+    with np.errstate(all="ignore"):          # each form is used only where it is sound
+        L, dL = _regular_series(m, Q, c, b)
+        direct = np.empty((4, len(Q), M + 1))
+        for kind, sel in (("J", Q[:, 0] > 0), ("I", Q[:, 0] <= 0)):
+            if sel.any():
+                direct[:, sel] = _radial(kind, M, q[sel], dq[sel], b, 0.0, b)
+    series = np.abs(Q) * b * b / 4 <= m + 1
+    return np.where(series, np.stack(np.broadcast_arrays(1.0, L, 0.0, dL)), direct)
+
+
+def _solve(radii, heights, E, M, hbar, mass):
+    """δ_m(E), dδ_m/dE for energies E (none at a shell level) and m = 0…M.
+
+    A partial wave whose transfer through a shell overflows (deep beneath the
+    centrifugal barrier there: Y_m or K_m at the inner radius beyond 1e308)
+    restarts as the regular solution of that shell alone: what lies inside
+    changes δ_m by about J_m/Y_m there, far below rounding."""
     c = 2 * mass / hbar ** 2
+    E = E[:, None]
+    m = np.arange(M + 1)[None, :]
     k = np.sqrt(c * E)
-    shape = np.broadcast(E, m).shape
+    state = np.zeros((4, len(E), M + 1))            # u, u', ∂u/∂E, ∂u'/∂E
     core = np.nonzero(np.isinf(heights))[0]
-    start = int(core[-1]) + 1 if core.size else 0
+    first = int(core[-1]) + 1 if core.size else 0
+    fresh = np.ones(state.shape[1:], bool)
     if core.size:          # a hard core: R = 0 at its radius
-        u, p = np.zeros(shape), np.ones(shape)
-        du, dp = np.zeros(shape), np.zeros(shape)
-    for j in range(start, len(radii)):
+        state[1] = 1.0
+        fresh[:] = False
+    for j in range(first, len(radii)):
         b, V = radii[j], heights[j]
-        a = radii[j - 1] if j > 0 else 0.0
-        Q = c * (E - V) + 0.0 * m
+        Q = c * (E - V)
         q = np.sqrt(np.abs(Q))
         dq = c / (2 * q) * np.sign(Q)          # d|q|/dE (κ falls as E rises)
-        if j == start and not core.size:
-            series = np.abs(Q) * b * b / 4 <= m + 1
-            kind = np.where(Q > 0, "J", "I")
-            with np.errstate(all="ignore"):      # each is used only where it is sound
-                L, dL = _regular_series(m, Q, c, b)
-                vJ = _radial("J", m, q, dq, b, 0.0, b)
-                vI = _radial("I", m, q, dq, b, 0.0, b)
-            u, p, du, dp = (np.where(series, s, np.where(kind == "J", x, y))
-                            for s, x, y in zip((1.0, L, 0.0, dL), vJ, vI))
-            continue
-        out = []
-        for kinds, w in ((("J", "Y"), 2 / (np.pi * a)), (("I", "K"), -1 / a)):
-            with np.errstate(all="ignore"):
-                Fa, Fb = (_radial(kinds[0], m, q, dq, r, a, b) for r in (a, b))
-                Ga, Gb = (_radial(kinds[1], m, q, dq, r, a, b) for r in (a, b))
-            out.append(_transfer(Fa, Fb, Ga, Gb, w, u, p, du, dp))
-        u, p, du, dp = (np.where(Q > 0, x, y) for x, y in zip(*out))
-        scale = 1 / np.maximum(np.abs(u), np.abs(p))
-        u, p, du, dp = u * scale, p * scale, du * scale, dp * scale
+        if j > first or core.size:
+            a = radii[j - 1]
+            new = np.full(state.shape, np.nan)
+            osc = Q[:, 0] > 0
+            for rows, (kf, kg), w in ((osc, "JY", 2 / (np.pi * a)), (~osc, "IK", -1 / a)):
+                if rows.any():
+                    with np.errstate(all="ignore"):
+                        F = [_radial(kf, M, q[rows], dq[rows], r, a, b) for r in (a, b)]
+                        G = [_radial(kg, M, q[rows], dq[rows], r, a, b) for r in (a, b)]
+                        new[:, rows] = _transfer(F[0], F[1], G[0], G[1], w, *state[:, rows])
+            fresh = ~(np.all(np.isfinite(new), axis=0) & ((new[0] != 0) | (new[1] != 0)))
+            state = new
+        rows = np.nonzero(fresh.any(axis=1))[0]
+        if rows.size:
+            start = _regular_start(m, Q, q, dq, c, b, rows)
+            state[:, rows] = np.where(fresh[rows], start, state[:, rows])
+        state = state / np.maximum(np.abs(state[0]), np.abs(state[1]))
+    u, p, du, dp = state
     R = radii[-1]
-    J, J1, J2 = _bessel("J", m, k * R)
-    Y, Y1, Y2 = _bessel("Y", m, k * R)
+    J, J1, J2 = _bessel("J", M, k * R)
+    Y, Y1, Y2 = _bessel("Y", M, k * R)
     dk = c / (2 * k)
     N = u * k * J1 - p * J
     D = u * k * Y1 - p * Y
@@ -233,12 +298,9 @@ def _solve(radii, heights, E, m, hbar, mass):
     delta = (delta + 0.5 * np.pi) % np.pi - 0.5 * np.pi
     ddelta = (dN * D - N * dD) / (N ** 2 + D ** 2)
     if not (np.all(np.isfinite(delta)) and np.all(np.isfinite(ddelta))):
-        raise TheoryError("a partial wave is too deep beneath the centrifugal barrier of an "
-                          "inner shell to be computed; use fewer, thicker inner shells or a "
-                          "smaller m_max")
+        raise TheoryError("a partial wave could not be matched (an energy too close to a "
+                          "shell level, or m_max beyond what double precision can hold)")
     return delta, ddelta
-
-
 def _transfer(Fa, Fb, Ga, Gb, w, u, p, du, dp):
     """(u, p) at the shell's outer radius from (u, p) at its inner one, with
     E-derivatives: R(b) = [u(G'_a F_b − F'_a G_b) + p(F_a G_b − G_a F_b)]/W(a)."""
@@ -284,7 +346,7 @@ def phase_shifts(shells, energies, *, hbar: float = 1.0, mass: float = 1.0,
     top = m_max if m_max is not None else min(_m_start(radii, heights, E, c), M_CAP)
     while True:
         m = np.arange(top + 1)
-        delta, ddelta = _nudged(radii, heights, E, m, hbar, mass)
+        delta, ddelta = _nudged(radii, heights, E, top, hbar, mass)
         s = np.abs(np.sin(delta))
         tail = s[:, -2:].max() if top >= 1 else 0.0
         if m_max is not None or tail <= TAIL_TOL * max(s.max(), 1e-300) or top >= M_CAP:
@@ -293,18 +355,17 @@ def phase_shifts(shells, energies, *, hbar: float = 1.0, mass: float = 1.0,
     return PhaseShifts(E, np.sqrt(c * E), m, delta, ddelta, float(hbar), float(mass))
 
 
-def _nudged(radii, heights, E, m, hbar, mass):
+def _nudged(radii, heights, E, M, hbar, mass):
     """_solve, with energies at a shell level replaced by the mean of E(1 ± h)."""
     levels = heights[np.isfinite(heights)]
     near = np.zeros(E.shape, bool)
     for V in levels:
         near |= np.abs(E - V) <= LEVEL_GAP * np.maximum(np.abs(E), abs(V))
-    Ec = E[:, None]
     if not near.any():
-        return _solve(radii, heights, Ec, m, hbar, mass)
-    h = 1e-5 * E[:, None]
-    lo = _solve(radii, heights, np.where(near[:, None], Ec - h, Ec), m, hbar, mass)
-    hi = _solve(radii, heights, np.where(near[:, None], Ec + h, Ec), m, hbar, mass)
+        return _solve(radii, heights, E, M, hbar, mass)
+    h = 1e-5 * E
+    lo = _solve(radii, heights, np.where(near, E - h, E), M, hbar, mass)
+    hi = _solve(radii, heights, np.where(near, E + h, E), M, hbar, mass)
     gap = (hi[0] - lo[0] + 0.5 * np.pi) % np.pi - 0.5 * np.pi       # the same branch
     delta = (lo[0] + 0.5 * gap + 0.5 * np.pi) % np.pi - 0.5 * np.pi
     return delta, 0.5 * (lo[1] + hi[1])
