@@ -82,6 +82,17 @@ def test_phase_shifts_and_analytic_derivatives_match_an_mpmath_matching(shells, 
         assert abs(ps.ddelta_dE[0, m] - dref) < 1e-11 * max(1.0, abs(dref))
 
 
+def test_partial_waves_that_overflow_inside_a_tiny_inner_shell_stay_exact():
+    """k·a = 250 with a first shell of radius 1e-3: Y_m there is beyond 1e308 for
+    m ≳ 90, and the regular solution restarts in the next shell."""
+    shells = [(1e-3, 0.5), (20.0, 0.3), (40.0, 0.1)]
+    ps = phase_shifts(shells, [20.0])
+    for m in (60, 100, 150):
+        assert abs(mod_pi(float(mp_delta(m, 20.0, shells)) - ps.delta[0, m])) < 1e-12
+        dref = float(mp.diff(lambda x: mp_delta(m, x, shells), 20.0))
+        assert ps.ddelta_dE[0, m] == pytest.approx(dref, rel=1e-10)
+
+
 def test_an_energy_at_a_shell_level_is_finite_and_continuous():
     shells = [(2.0, 0.0), (3.0, 1.0)]
     at = phase_shifts(shells, [1.0], m_max=8)
