@@ -13,8 +13,9 @@ from ..errors import TheoryError
 from .partial_waves import phase_shifts
 
 K_SPAN = 8.0            # the band: k₀ ± 8 σ_k (|ψ̃₀|² falls to 1e-14)
-NODES_START = 64        # Gauss–Legendre nodes of the first try
-NODES_MAX = 4096        # ... and of the last
+RULE = np.polynomial.legendre.leggauss(16)      # one panel's Gauss–Legendre rule
+PANELS_START = 4        # panels of the first try (64 nodes)
+PANELS_MAX = 256        # ... and of the last (4096 nodes)
 
 
 def _finite(values) -> list:
@@ -66,9 +67,10 @@ def packet_angular_prediction(shells, theta, *, k0: float, sigma_k: float,
                               hbar: float = 1.0, mass: float = 1.0, m_max: int | None = None,
                               tol: float = 1e-8) -> AngularPrediction:
     """dσ/dθ and τ(θ) averaged over a Gaussian packet |ψ̃₀(k)|² (centre k₀ > 0,
-    rms σ_k) along its incidence, E = ħ²k²/2m. Gauss–Legendre quadrature on
-    [max(k₀ − 8σ_k, k₀/100), k₀ + 8σ_k], doubled until both averages change by
-    less than `tol` (relative to their largest magnitude over θ)."""
+    rms σ_k) along its incidence, E = ħ²k²/2m. 16-point Gauss–Legendre panels
+    on [max(k₀ − 8σ_k, k₀/100), k₀ + 8σ_k], their number doubled until both
+    averages change by less than `tol` (relative to their largest magnitude
+    over θ): a narrow resonance inside the band is resolved."""
     theta = _angles(theta)
     for name, v in (("k0", k0), ("sigma_k", sigma_k), ("tol", tol)):
         if not (isinstance(v, (int, float, np.floating)) and math.isfinite(v) and v > 0):
@@ -77,27 +79,28 @@ def packet_angular_prediction(shells, theta, *, k0: float, sigma_k: float,
     cdf = lambda k: 0.5 * math.erfc(-(k - k0) / (math.sqrt(2) * sigma_k))
     excluded = 1.0 - (cdf(k_hi) - cdf(k_lo))
 
-    def averages(n):
-        x, w = np.polynomial.legendre.leggauss(n)
-        k = 0.5 * (k_hi + k_lo) + 0.5 * (k_hi - k_lo) * x
-        rho = 0.5 * (k_hi - k_lo) * w * np.exp(-0.5 * ((k - k0) / sigma_k) ** 2)
+    def averages(panels):
+        edges = np.linspace(k_lo, k_hi, panels + 1)
+        half = 0.5 * (edges[1] - edges[0])
+        k = (0.5 * (edges[1:] + edges[:-1])[:, None] + half * RULE[0]).ravel()
+        rho = np.tile(half * RULE[1], panels) * np.exp(-0.5 * ((k - k0) / sigma_k) ** 2)
         ps = phase_shifts(shells, hbar ** 2 * k ** 2 / (2 * mass), hbar=hbar, mass=mass,
                           m_max=m_max)
         flux = rho @ ps.cross_section(theta)
         return flux / rho.sum(), rho @ ps.weighted_delay(theta) / flux
 
-    n = NODES_START
-    prev = averages(n)
+    panels = PANELS_START
+    prev = averages(panels)
     while True:
-        n *= 2
-        cur = averages(n)
+        panels *= 2
+        cur = averages(panels)
         change = max(np.max(np.abs(c - p)) / max(np.max(np.abs(c)), 1e-300)
                      for c, p in zip(cur, prev))
-        if change <= tol or n >= NODES_MAX:
+        if change <= tol or panels >= PANELS_MAX:
             break
         prev = cur
     return AngularPrediction(theta, cur[0], cur[1], float(k0), float(sigma_k),
-                             (float(k_lo), float(k_hi)), float(excluded), n)
+                             (float(k_lo), float(k_hi)), float(excluded), panels * RULE[0].size)
 
 
 def partial_wave_table(shells, energies, theta, *, hbar: float = 1.0, mass: float = 1.0,
