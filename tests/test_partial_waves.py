@@ -194,3 +194,21 @@ def test_bessel_recurrences_agree_with_scipy():
         got = _orders(kind, 150, z)
         with np.errstate(invalid="ignore"):          # inf − inf where scipy overflows too
             assert np.max(np.abs(got - ref)[ok] / scale[ok]) < 1e-12
+
+
+def test_bin_predictions_are_flux_weighted_means_over_each_bin():
+    """Bin averages against a dense trapezoid rule in θ of the pointwise packet
+    averages (the flux per angle and the flux-weighted delay)."""
+    from sojourn.theory.angular_averages import packet_bin_prediction
+    edges = np.array([0.0, 0.3, 1.0, 2.5, np.pi])
+    binned = packet_bin_prediction(DISK, edges, k0=1.0, sigma_k=0.05)
+    assert np.allclose(binned.theta, 0.5 * (edges[1:] + edges[:-1]))
+    for i in range(edges.size - 1):
+        th = np.linspace(edges[i], edges[i + 1], 801)
+        point = packet_angular_prediction(DISK, th, k0=1.0, sigma_k=0.05)
+        flux = np.trapezoid(point.cross_section, th)
+        assert binned.cross_section[i] == pytest.approx(flux / (th[-1] - th[0]), rel=1e-6)
+        assert binned.delay[i] == pytest.approx(
+            np.trapezoid(point.cross_section * point.delay, th) / flux, rel=1e-6)
+    with pytest.raises(TheoryError, match="increasing"):
+        packet_bin_prediction(DISK, [1.0, 0.5], k0=1.0, sigma_k=0.05)

@@ -63,44 +63,77 @@ class AngularPrediction:
                 "nodes": self.nodes}
 
 
-def packet_angular_prediction(shells, theta, *, k0: float, sigma_k: float,
-                              hbar: float = 1.0, mass: float = 1.0, m_max: int | None = None,
-                              tol: float = 1e-8) -> AngularPrediction:
-    """dσ/dθ and τ(θ) averaged over a Gaussian packet |ψ̃₀(k)|² (centre k₀ > 0,
-    rms σ_k) along its incidence, E = ħ²k²/2m. 16-point Gauss–Legendre panels
-    on [max(k₀ − 8σ_k, k₀/100), k₀ + 8σ_k], their number doubled until both
-    averages change by less than `tol` (relative to their largest magnitude
-    over θ): a narrow resonance inside the band is resolved."""
-    theta = _angles(theta)
+def _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol):
+    """∫ρ dk, ∫ρ|f|² dk and ∫ρ|f|²τ dk per angle (ρ the Gaussian |ψ̃₀|²) on
+    16-point Gauss–Legendre panels, doubled until converged; with the band."""
     for name, v in (("k0", k0), ("sigma_k", sigma_k), ("tol", tol)):
         if not (isinstance(v, (int, float, np.floating)) and math.isfinite(v) and v > 0):
             raise TheoryError(f"{name} must be a finite positive number (got {v!r})")
     k_lo, k_hi = max(k0 - K_SPAN * sigma_k, k0 / 100), k0 + K_SPAN * sigma_k
-    cdf = lambda k: 0.5 * math.erfc(-(k - k0) / (math.sqrt(2) * sigma_k))
-    excluded = 1.0 - (cdf(k_hi) - cdf(k_lo))
 
-    def averages(panels):
+    def sums(panels):
         edges = np.linspace(k_lo, k_hi, panels + 1)
         half = 0.5 * (edges[1] - edges[0])
         k = (0.5 * (edges[1:] + edges[:-1])[:, None] + half * RULE[0]).ravel()
         rho = np.tile(half * RULE[1], panels) * np.exp(-0.5 * ((k - k0) / sigma_k) ** 2)
         ps = phase_shifts(shells, hbar ** 2 * k ** 2 / (2 * mass), hbar=hbar, mass=mass,
                           m_max=m_max)
-        flux = rho @ ps.cross_section(theta)
-        return flux / rho.sum(), rho @ ps.weighted_delay(theta) / flux
+        return rho.sum(), rho @ ps.cross_section(theta), rho @ ps.weighted_delay(theta)
 
     panels = PANELS_START
-    prev = averages(panels)
+    prev = sums(panels)
     while True:
         panels *= 2
-        cur = averages(panels)
+        cur = sums(panels)
         change = max(np.max(np.abs(c - p)) / max(np.max(np.abs(c)), 1e-300)
-                     for c, p in zip(cur, prev))
+                     for c, p in zip(cur[1:], prev[1:]))
         if change <= tol or panels >= PANELS_MAX:
             break
         prev = cur
-    return AngularPrediction(theta, cur[0], cur[1], float(k0), float(sigma_k),
-                             (float(k_lo), float(k_hi)), float(excluded), panels * RULE[0].size)
+    cdf = lambda k: 0.5 * math.erfc(-(k - k0) / (math.sqrt(2) * sigma_k))
+    band = dict(k0=float(k0), sigma_k=float(sigma_k), k_range=(float(k_lo), float(k_hi)),
+                excluded_weight=float(1.0 - (cdf(k_hi) - cdf(k_lo))),
+                nodes=panels * RULE[0].size)
+    return cur, band
+
+
+def packet_angular_prediction(shells, theta, *, k0: float, sigma_k: float,
+                              hbar: float = 1.0, mass: float = 1.0, m_max: int | None = None,
+                              tol: float = 1e-8) -> AngularPrediction:
+    """dσ/dθ and τ(θ) at the angles `theta`, averaged over a Gaussian packet
+    |ψ̃₀(k)|² (centre k₀ > 0, rms σ_k) along its incidence, E = ħ²k²/2m.
+    16-point Gauss–Legendre panels on [max(k₀ − 8σ_k, k₀/100), k₀ + 8σ_k],
+    their number doubled until both averages change by less than `tol`
+    (relative to their largest magnitude over θ): a narrow resonance inside
+    the band is resolved."""
+    theta = _angles(theta)
+    (norm, flux, weighted), band = _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol)
+    return AngularPrediction(theta, flux / norm, weighted / flux, **band)
+
+
+def packet_bin_prediction(shells, edges, *, k0: float, sigma_k: float, hbar: float = 1.0,
+                          mass: float = 1.0, m_max: int | None = None, tol: float = 1e-8,
+                          per_bin: int = 8) -> AngularPrediction:
+    """What detector bins [edges_i, edges_i+1] (radians, increasing) measure:
+    the mean dσ/dθ over each bin, ∫_bin∫ρ|f|² dk dθ / (Δθ ∫ρ dk), and the
+    flux-weighted delay of the bin, ∫_bin∫ρ|f|²τ / ∫_bin∫ρ|f|² (PHYSICS
+    §Partial waves); `per_bin` Gauss–Legendre angles in each. θ = bin centres."""
+    edges = _angles(edges)
+    if edges.size < 2 or not np.all(np.diff(edges) > 0):
+        raise TheoryError("bin edges must be at least two increasing angles")
+    if not (isinstance(per_bin, (int, np.integer)) and 1 <= per_bin <= 64):
+        raise TheoryError(f"per_bin must be an integer in 1…64 (got {per_bin!r})")
+    x, w = np.polynomial.legendre.leggauss(int(per_bin))
+    half = 0.5 * np.diff(edges)
+    centres = 0.5 * (edges[1:] + edges[:-1])
+    theta = (centres[:, None] + half[:, None] * x).ravel()
+    weights = (half[:, None] * w).ravel()
+    (norm, flux, weighted), band = _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol)
+    n = centres.size
+    bin_flux = (weights * flux).reshape(n, -1).sum(axis=1)
+    bin_weighted = (weights * weighted).reshape(n, -1).sum(axis=1)
+    return AngularPrediction(centres, bin_flux / (2 * half * norm), bin_weighted / bin_flux,
+                             **band)
 
 
 def partial_wave_table(shells, energies, theta, *, hbar: float = 1.0, mass: float = 1.0,
