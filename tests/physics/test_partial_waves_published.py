@@ -282,7 +282,8 @@ def test_packet_averages_are_what_the_flux_through_a_far_circle_gives():
     component scatters alone; the free incident centre passes 0 at t = 0):
     the flux through the arc per radian over all time, over the incident
     fluence, is dσ/dθ; its mean arrival time minus that of the reference built
-    from |φ̃ f| is the averaged τ(θ) (PHYSICS §Partial waves)."""
+    from |φ̃ f| is the averaged τ(θ), and that reference arrives at R·⟨1/v⟩
+    (PHYSICS §Partial waves): all exact in the far field."""
     shells, k0, sk, Rd = [(3.0, 1.0)], 1.0, 0.05, 400.0
     theta = np.array([0.4, 1.5, 2.6, np.pi])
     pred = packet_angular_prediction(shells, theta, k0=k0, sigma_k=sk)
@@ -302,5 +303,6 @@ def test_packet_averages_are_what_the_flux_through_a_far_circle_gives():
                 prob, arrival = J.sum() * (t[1] - t[0]), np.sum(t * J) / J.sum()
             else:
                 reference = np.sum(t * J) / J.sum()
-        assert prob / fluence == pytest.approx(pred.cross_section[j], rel=2e-3)
-        assert arrival - reference == pytest.approx(pred.delay[j], abs=2e-3 * Rd / k0 * sk)
+        assert prob / fluence == pytest.approx(pred.cross_section[j], rel=1e-9)
+        assert arrival - reference == pytest.approx(pred.delay[j], abs=1e-8)   # seen: 2e-11
+        assert reference == pytest.approx(Rd * pred.inverse_speed[j], abs=1e-8)

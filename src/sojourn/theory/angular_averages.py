@@ -43,12 +43,17 @@ class AngularPrediction:
     delay : ⟨τ(θ, k)⟩ = ∫|ψ̃₀|²|f|²τ dk / ∫|ψ̃₀|²|f|² dk, the mean arrival time per
         bin minus that of a free outgoing wave of the same filtered spectrum
         leaving the centre as the free incident packet's centre passes it.
+    inverse_speed : ⟨m/ħk⟩ with the same weights: the reference (a free outgoing
+        wave of the filtered spectrum from the centre) reaches radius R at the
+        flux-weighted mean time (R − x₀)·inverse_speed when the free incident
+        centre is at x₀ at t = 0 (exact in the far field; PHYSICS §Partial waves).
     excluded_weight : the share of the Gaussian |ψ̃₀|² outside the band used.
     """
 
     theta: np.ndarray
     cross_section: np.ndarray
     delay: np.ndarray
+    inverse_speed: np.ndarray
     k0: float
     sigma_k: float
     k_range: tuple[float, float]
@@ -58,14 +63,16 @@ class AngularPrediction:
     def as_dict(self) -> dict:
         """JSON-ready (None where a value is not finite)."""
         return {"theta": _finite(self.theta), "cross_section": _finite(self.cross_section),
-                "delay": _finite(self.delay), "k0": self.k0, "sigma_k": self.sigma_k,
+                "delay": _finite(self.delay), "inverse_speed": _finite(self.inverse_speed),
+                "k0": self.k0, "sigma_k": self.sigma_k,
                 "k_range": list(self.k_range), "excluded_weight": self.excluded_weight,
                 "nodes": self.nodes}
 
 
 def _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol):
-    """∫ρ dk, ∫ρ|f|² dk and ∫ρ|f|²τ dk per angle (ρ the Gaussian |ψ̃₀|²) on
-    16-point Gauss–Legendre panels, doubled until converged; with the band."""
+    """∫ρ dk, and per angle ∫ρ|f|² dk, ∫ρ|f|²τ dk, ∫ρ|f|² m/(ħk) dk (ρ the
+    Gaussian |ψ̃₀|²) on 16-point Gauss–Legendre panels, doubled until
+    converged; with the band."""
     for name, v in (("k0", k0), ("sigma_k", sigma_k), ("tol", tol)):
         if not (isinstance(v, (int, float, np.floating)) and math.isfinite(v) and v > 0):
             raise TheoryError(f"{name} must be a finite positive number (got {v!r})")
@@ -78,7 +85,9 @@ def _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol):
         rho = np.tile(half * RULE[1], panels) * np.exp(-0.5 * ((k - k0) / sigma_k) ** 2)
         ps = phase_shifts(shells, hbar ** 2 * k ** 2 / (2 * mass), hbar=hbar, mass=mass,
                           m_max=m_max)
-        return rho.sum(), rho @ ps.cross_section(theta), rho @ ps.weighted_delay(theta)
+        cs = ps.cross_section(theta)
+        return (rho.sum(), rho @ cs, rho @ ps.weighted_delay(theta),
+                (rho * mass / (hbar * k)) @ cs)
 
     panels = PANELS_START
     prev = sums(panels)
@@ -107,8 +116,9 @@ def packet_angular_prediction(shells, theta, *, k0: float, sigma_k: float,
     (relative to their largest magnitude over θ): a narrow resonance inside
     the band is resolved."""
     theta = _angles(theta)
-    (norm, flux, weighted), band = _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol)
-    return AngularPrediction(theta, flux / norm, weighted / flux, **band)
+    (norm, flux, weighted, slow), band = _band_sums(shells, theta, k0, sigma_k, hbar, mass,
+                                                    m_max, tol)
+    return AngularPrediction(theta, flux / norm, weighted / flux, slow / flux, **band)
 
 
 def packet_bin_prediction(shells, edges, *, k0: float, sigma_k: float, hbar: float = 1.0,
@@ -128,11 +138,12 @@ def packet_bin_prediction(shells, edges, *, k0: float, sigma_k: float, hbar: flo
     centres = 0.5 * (edges[1:] + edges[:-1])
     theta = (centres[:, None] + half[:, None] * x).ravel()
     weights = (half[:, None] * w).ravel()
-    (norm, flux, weighted), band = _band_sums(shells, theta, k0, sigma_k, hbar, mass, m_max, tol)
-    n = centres.size
-    bin_flux = (weights * flux).reshape(n, -1).sum(axis=1)
-    bin_weighted = (weights * weighted).reshape(n, -1).sum(axis=1)
-    return AngularPrediction(centres, bin_flux / (2 * half * norm), bin_weighted / bin_flux,
+    (norm, flux, weighted, slow), band = _band_sums(shells, theta, k0, sigma_k, hbar, mass,
+                                                    m_max, tol)
+    per_bin_sum = lambda v: (weights * v).reshape(centres.size, -1).sum(axis=1)
+    bin_flux = per_bin_sum(flux)
+    return AngularPrediction(centres, bin_flux / (2 * half * norm),
+                             per_bin_sum(weighted) / bin_flux, per_bin_sum(slow) / bin_flux,
                              **band)
 
 
