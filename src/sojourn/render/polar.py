@@ -167,6 +167,8 @@ def polar_figure(curves: Sequence[PolarCurve], *, measured: Optional[PolarPoints
                     loc="upper left", bbox_to_anchor=(0.85, 1.12))
     if title:
         fig.suptitle(title, fontsize=0.9 * font, color=look.text)
+    fig.supxlabel("θ from the incidence direction (+x); τ relative to a wave leaving the centre",
+                  fontsize=0.6 * font, color=look.text)
     apply_look(fig, [ax_t, ax_s], look, font)
     ax_s.set_facecolor(look.background)
     fit_inside(fig)
