@@ -212,3 +212,27 @@ def test_bin_predictions_are_flux_weighted_means_over_each_bin():
             np.trapezoid(point.cross_section * point.delay, th) / flux, rel=1e-6)
     with pytest.raises(TheoryError, match="increasing"):
         packet_bin_prediction(DISK, [1.0, 0.5], k0=1.0, sigma_k=0.05)
+
+
+def test_beam_prediction_tends_to_the_band_average_for_a_wide_beam():
+    """A beam much wider than the potential (σ_ky → 0) leaves only the band
+    average; a finite width shifts both by the coherent sum over directions,
+    mirror-symmetric under y₀ → −y₀, θ → −θ, and converged in its quadrature."""
+    from sojourn.theory.angular_averages import packet_beam_prediction
+    theta = np.array([np.pi / 2, 2.5, np.pi])
+    kw = dict(k0=1.0, sigma_k=0.05, x0=-45.0)
+    band = packet_angular_prediction(DISK, theta, k0=1.0, sigma_k=0.05)
+    wide = packet_beam_prediction(DISK, theta, sigma_ky=1e-4, **kw)
+    assert np.allclose(wide.delay, band.delay, rtol=1e-6)
+    assert np.allclose(wide.cross_section, band.cross_section, rtol=1e-6)
+    assert np.allclose(wide.inverse_speed, band.inverse_speed, rtol=1e-6)
+    beam = packet_beam_prediction(DISK, theta, sigma_ky=0.05, **kw)
+    assert 1e-3 < abs(beam.cross_section[0] / band.cross_section[0] - 1) < 0.05
+    finer = packet_beam_prediction(DISK, theta, sigma_ky=0.05, panels=32, alpha_nodes=96, **kw)
+    assert np.allclose(finer.delay, beam.delay, rtol=1e-8)
+    assert np.allclose(finer.cross_section, beam.cross_section, rtol=1e-8)
+    up = packet_beam_prediction(DISK, theta, sigma_ky=0.05, y0=2.0, **kw)
+    down = packet_beam_prediction(DISK, -theta, sigma_ky=0.05, y0=-2.0, **kw)
+    assert np.allclose(up.delay, down.delay, rtol=1e-10)
+    assert np.allclose(up.cross_section, down.cross_section, rtol=1e-10)
+    assert not np.allclose(up.cross_section, beam.cross_section, rtol=1e-3)

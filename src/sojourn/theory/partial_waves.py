@@ -109,6 +109,12 @@ class PhaseShifts:
         S, _ = self._sums(theta)
         return np.sqrt(2 / (np.pi * self.k))[:, None] * np.exp(0.25j * np.pi) * S
 
+    def amplitude_dE(self, theta) -> np.ndarray:
+        """∂f/∂E = √(2/πk) e^{iπ/4} (S_E − S/4E) (k_E/2k = 1/4E)."""
+        S, dS = self._sums(theta)
+        return (np.sqrt(2 / (np.pi * self.k))[:, None] * np.exp(0.25j * np.pi)
+                * (dS - S / (4 * self.energy)[:, None]))
+
     def cross_section(self, theta) -> np.ndarray:
         """dσ/dθ = |f(θ)|² (a length per radian)."""
         S, _ = self._sums(theta)
