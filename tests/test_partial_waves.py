@@ -236,3 +236,11 @@ def test_beam_prediction_tends_to_the_band_average_for_a_wide_beam():
     assert np.allclose(up.delay, down.delay, rtol=1e-10)
     assert np.allclose(up.cross_section, down.cross_section, rtol=1e-10)
     assert not np.allclose(up.cross_section, beam.cross_section, rtol=1e-3)
+
+
+def test_amplitude_energy_derivative_is_the_slope_of_the_amplitude():
+    theta = np.linspace(0, np.pi, 7)
+    E, h = 0.5, 1e-5
+    analytic = phase_shifts(DISK, [E], m_max=30).amplitude_dE(theta)[0]
+    f = phase_shifts(DISK, [E - h, E + h], m_max=30).amplitude(theta)
+    assert np.allclose(analytic, (f[1] - f[0]) / (2 * h), rtol=1e-7, atol=1e-9)
