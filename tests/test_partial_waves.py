@@ -38,6 +38,7 @@ def test_bad_shells_are_refused_with_the_reason(shells, message):
     (dict(energies=[0.0]), "positive"), (dict(energies=[math.nan]), "positive"),
     (dict(energies=[]), "positive"), (dict(energies=[0.5], hbar=0.0), "hbar"),
     (dict(energies=[0.5], m_max=-1), "m_max"), (dict(energies=[0.5], m_max=2.5), "m_max"),
+    (dict(energies=["half"]), "numbers"),
 ])
 def test_bad_energies_and_constants_are_refused(kw, message):
     with pytest.raises(TheoryError, match=message):
@@ -73,6 +74,8 @@ def test_table_is_strict_json_with_one_row_per_energy():
     assert len(table["delay"][1]) == 5 and len(table["cross_section"][0]) == 5
     with pytest.raises(TheoryError, match="angles"):
         partial_wave_table(DISK, [0.5], [])
+    with pytest.raises(TheoryError, match="angles"):
+        partial_wave_table(DISK, [0.5], ["north"])
 
 
 def test_a_narrow_packet_averages_to_the_stationary_values():

@@ -64,7 +64,10 @@ def curves_from_table(table: dict, energy_unit: str = "") -> list[PolarCurve]:
 def _array(values, n, what) -> Optional[np.ndarray]:
     if values is None:
         return None
-    a = np.asarray(values, dtype=float).ravel()
+    try:
+        a = np.asarray(values, dtype=float).ravel()
+    except (TypeError, ValueError):
+        raise RenderError(f"{what}: not numbers") from None
     if a.size != n:
         raise RenderError(f"{what}: {a.size} values for {n} angles")
     return a
@@ -76,8 +79,9 @@ def _check(curves, measured):
     for c in curves:
         if not isinstance(c, PolarCurve):
             raise RenderError("curves must be PolarCurve values")
-        n = np.asarray(c.theta).size
-        if n < 2 or not np.all(np.isfinite(c.theta)):
+        theta = _array(c.theta, np.size(c.theta), f"curve {c.label!r} angles")
+        n = theta.size
+        if n < 2 or not np.all(np.isfinite(theta)):
             raise RenderError(f"curve {c.label!r}: at least two finite angles are needed")
         _array(c.delay, n, f"curve {c.label!r} delay")
         _array(c.cross_section, n, f"curve {c.label!r} cross section")

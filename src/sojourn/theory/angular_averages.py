@@ -27,7 +27,10 @@ def _finite(values) -> list:
 
 
 def _angles(theta) -> np.ndarray:
-    theta = np.atleast_1d(np.asarray(theta, dtype=float)).ravel()
+    try:
+        theta = np.atleast_1d(np.asarray(theta, dtype=float)).ravel()
+    except (TypeError, ValueError):
+        raise TheoryError("angles must be numbers (radians from +x)") from None
     if theta.size == 0 or not np.all(np.isfinite(theta)):
         raise TheoryError("angles must be a non-empty list of finite numbers (radians from +x)")
     return theta

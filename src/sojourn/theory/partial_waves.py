@@ -96,7 +96,10 @@ class PhaseShifts:
 
     def _sums(self, theta) -> tuple[np.ndarray, np.ndarray]:
         """S(θ) = Σ e^{iδ}sin δ e^{imθ} and dS/dE over all m, shape (energies, θ)."""
-        theta = np.atleast_1d(np.asarray(theta, dtype=float))
+        try:
+            theta = np.atleast_1d(np.asarray(theta, dtype=float))
+        except (TypeError, ValueError):
+            raise TheoryError("angles must be numbers (radians)") from None
         if not np.all(np.isfinite(theta)):
             raise TheoryError("angles must be finite numbers (radians)")
         weight = np.where(self.m == 0, 1.0, 2.0)[:, None] * np.cos(np.outer(self.m, theta))
@@ -154,7 +157,10 @@ def phase_shifts(shells, energies, *, hbar: float = 1.0, mass: float = 1.0,
     """
     radii, heights = check_shells(shells)
     _check_positive(hbar=hbar, mass=mass)
-    E = np.atleast_1d(np.asarray(energies, dtype=float)).ravel()
+    try:
+        E = np.atleast_1d(np.asarray(energies, dtype=float)).ravel()
+    except (TypeError, ValueError):
+        raise TheoryError("energies must be numbers") from None
     if E.size == 0 or not np.all(np.isfinite(E)) or np.any(E <= 0):
         raise TheoryError("energies must be finite and positive (V = 0 outside the shells)")
     if m_max is not None and not (isinstance(m_max, (int, np.integer)) and 0 <= m_max <= M_CAP):
