@@ -69,7 +69,8 @@ def test_sidebands_converge_in_the_number_kept():
     values = [fl.floquet_scatter(pot, [0.6], hbar=1.0, sidebands=N).order(1)[0]
               for N in (3, 5, 7, 9, 12, 16)]
     changes = np.abs(np.diff(values))
-    assert changes[-1] < 1e-11 and changes[-1] < 1e-6 * changes[0] and np.all(changes[1:] <= changes[:-1] + 1e-15)
+    # falls geometrically (faster than J_N(V1/ħω)) to the round-off floor near 1e-12
+    assert np.all(changes[1:4] < 0.05 * changes[:3]) and np.all(changes[3:] < 1e-11)
     auto = fl.floquet_scatter(pot, [0.6], hbar=1.0)
     assert auto.order(1)[0] == pytest.approx(values[-1], abs=1e-10)
 
