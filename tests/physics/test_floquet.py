@@ -15,6 +15,7 @@ from sojourn.model.packets import PacketInfo
 from sojourn.model.potentials import Barrier, Potential, Step, Well
 from sojourn.model.terms import Drive
 from sojourn.theory import floquet as fl
+from sojourn.theory.floquet_averages import packet_sidebands
 
 
 def barrier(V1, omega, *, height=1.0, width=3.0, phase=0.0):
@@ -124,21 +125,37 @@ def test_packet_averaged_sidebands_are_weighted_means_of_the_stationary_ones():
     pot = barrier(0.2, 0.15)
     narrow = PacketInfo(center=-500.0, width=400.0, k0=1.0, sigma_k=1 / 800, energy=0.5,
                         mean_energy=0.5, group_velocity=1.0, level=0.0)
-    got = fl.packet_sidebands(pot, narrow, hbar=1.0, mass=1.0)
+    got = packet_sidebands(pot, narrow, hbar=1.0, mass=1.0)
     at_k0 = fl.floquet_scatter(pot, [0.5], hbar=1.0)
     for n in (-2, -1, 0, 1, 2):
-        assert got.transmission[n] == pytest.approx(at_k0.order(n)[0], rel=1e-3)
-        assert got.reflection[n] == pytest.approx(at_k0.order(n, "reflection")[0], rel=1e-3)
+        for channel in ("transmission", "reflection"):
+            expected = at_k0.order(n, channel)[0]
+            assert got.stationary[channel][n] == pytest.approx(expected, rel=1e-3)
+            # a band far narrower than ħω: every window holds its own sideband only
+            assert got.windowed[channel][n] == pytest.approx(expected, rel=1e-3)
     wide = PacketInfo(center=-50.0, width=10.0, k0=1.0, sigma_k=0.05, energy=0.5,
                       mean_energy=0.5, group_velocity=1.0, level=0.0)
-    got = fl.packet_sidebands(pot, wide, hbar=1.0, mass=1.0, orders=range(-6, 7))
-    total = sum(got.transmission.values()) + sum(got.reflection.values())
-    assert total == pytest.approx(1.0, abs=1e-8)
+    got = packet_sidebands(pot, wide, hbar=1.0, mass=1.0, orders=range(-6, 7))
+    for kind in (got.stationary, got.windowed):
+        total = sum(kind["transmission"].values()) + sum(kind["reflection"].values())
+        assert total == pytest.approx(1.0, abs=1e-8)
+    # σ_E = ħω/3: the windows also catch the neighbours' tails
+    assert got.windowed["transmission"][1] != pytest.approx(got.stationary["transmission"][1],
+                                                            rel=1e-3)
     # by hand: a plain Riemann sum of the weights over a fine k grid
-    k = np.linspace(1.0 - 0.4, 1.0 + 0.4, 4001)
+    k = np.linspace(1.0 - 0.4, 1.0 + 0.4, 8001)
     w = np.exp(-0.5 * ((k - 1.0) / 0.05) ** 2)
-    T1 = fl.floquet_scatter(pot, k ** 2 / 2, hbar=1.0).order(1)
-    assert got.transmission[1] == pytest.approx(np.sum(w * T1) / np.sum(w), rel=1e-4)
+    sc = fl.floquet_scatter(pot, k ** 2 / 2, hbar=1.0, sidebands=12)
+    T1 = sc.order(1)
+    assert got.stationary["transmission"][1] == pytest.approx(np.sum(w * T1) / np.sum(w),
+                                                              rel=1e-4)
+    # the windowed share by hand: every sideband's spectrum binned by outgoing energy
+
+    binned = 0.0
+    for n in range(-sc.sidebands, sc.sidebands + 1):
+        inside = np.abs(k ** 2 / 2 + n * 0.15 - (0.5 + 0.15)) < 0.075
+        binned += np.sum(w * inside * sc.order(n))
+    assert got.windowed["transmission"][1] == pytest.approx(binned / np.sum(w), rel=1e-3)
 
 
 def test_refusals_are_theory_errors():

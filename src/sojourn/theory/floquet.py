@@ -1,7 +1,7 @@
 """Floquet scattering by driven piecewise-constant potentials (PHYSICS §Driven
 potentials): sideband amplitudes r_n, t_n and probabilities R_n, T_n, the
-weak-drive closed form for a rectangular barrier, the Büttiker–Landauer time
-and the packet-averaged sideband probabilities.
+weak-drive closed form for a rectangular barrier and the Büttiker–Landauer
+time (packet averages: `floquet_averages`).
 
 A layer j carries a static level V_j and a drive V1_j·cos(ωt + φ_j), one ω
 for all. Inside it ψ = e^{−iβ_j sin(ωt+φ_j)} χ with β_j = V1_j/ħω and χ a
@@ -28,9 +28,7 @@ import numpy as np
 from scipy.special import jv
 
 from ..errors import TheoryError
-from ..model.packets import PacketInfo
 from ..model.potentials import Potential
-from .averages import K_SPAN_AVERAGES
 from .layers import check_scattering, layers_from_potential
 
 MAX_SIDEBANDS = 60        # the largest N tried
@@ -302,70 +300,3 @@ def sideband_asymmetry(layers: DrivenLayers, energy: float, omegas: Sequence[flo
         lower = float(sc.order(-1)[0])
         out.append(float(sc.order(1)[0]) / lower if lower > 0 else math.nan)
     return np.array(out)
-
-
-@dataclass(frozen=True)
-class PacketSidebands:
-    """Packet-averaged sideband probabilities ∫|ψ̃₀(k)|² P_n(k) dk / ∫|ψ̃₀|² dk
-    per channel and order, and each order's energy E₀ + nħω."""
-
-    orders: tuple
-    energy: dict               # order -> E₀ + nħω
-    reflection: dict           # order -> probability
-    transmission: dict
-
-
-def packet_sidebands(potential, packet: PacketInfo, *, hbar: float, mass: float,
-                     orders: Sequence[int] = (-2, -1, 0, 1, 2), nodes: int = 48,
-                     tol: float = 1e-9) -> PacketSidebands:
-    """The packet average of R_n(k), T_n(k) with the incident weights |ψ̃₀(k)|²
-    (Gaussian in k, centre |k₀|, rms σ_k, over k₀ ± 8σ_k as `theory.averages`):
-    composite Gauss–Legendre split where a sideband channel opens, doubled
-    until the averages change by less than `tol`."""
-    if not isinstance(packet, PacketInfo):
-        raise TheoryError(f"packet must be a PacketInfo (got {type(packet).__name__})")
-    layers = potential if isinstance(potential, DrivenLayers) else driven_layers(potential, hbar)
-    direction = "right" if packet.k0 > 0 else "left"
-    if direction == "left":
-        layers = layers.mirrored()
-    k0, sk, level = abs(packet.k0), packet.sigma_k, packet.level
-    c = hbar ** 2 / (2 * mass)
-    hw = hbar * layers.omega
-    lo, hi = max(k0 - K_SPAN_AVERAGES * sk, k0 / 100), k0 + K_SPAN_AVERAGES * sk
-    cuts = {lo, hi}
-    for side in (layers.levels[0], layers.levels[-1]):
-        for n in range(-40, 41):
-            e = side - n * hw - level
-            if e > 0 and lo < math.sqrt(e / c) < hi:
-                cuts.add(math.sqrt(e / c))
-    inc = layers.levels[0]
-    if inc >= level + c * hi ** 2:
-        raise TheoryError("the packet's band lies below the incidence-side level")
-    lo = max(lo, math.sqrt(max(inc - level, 0.0) / c) * (1 + 1e-12))
-    cuts = sorted({lo} | {x for x in cuts if lo < x <= hi})
-
-    def averages(count):
-        x, w = np.polynomial.legendre.leggauss(count)
-        ks, ws = [], []
-        for a, b in zip(cuts[:-1], cuts[1:]):
-            ks.append(0.5 * (b - a) * x + 0.5 * (a + b))
-            ws.append(0.5 * (b - a) * w)
-        k, w = np.concatenate(ks), np.concatenate(ws)
-        w = w * np.exp(-0.5 * ((k - k0) / sk) ** 2)
-        sc = floquet_scatter(layers, level + c * k ** 2, hbar=hbar, mass=mass)
-        Z = float(np.sum(w))
-        return {(ch, n): float(np.sum(w * sc.order(n, ch))) / Z
-                for ch in ("reflection", "transmission") for n in orders}
-
-    count = nodes
-    prev = averages(count)
-    while count < 16 * nodes:
-        count *= 2
-        cur = averages(count)
-        if max(abs(cur[key] - prev[key]) for key in cur) <= tol:
-            break
-        prev = cur
-    return PacketSidebands(
-        tuple(orders), {n: packet.energy + n * hw for n in orders},
-        {n: cur[("reflection", n)] for n in orders},
-        {n: cur[("transmission", n)] for n in orders})
