@@ -143,7 +143,7 @@ def test_packet_averaged_sidebands_are_weighted_means_of_the_stationary_ones():
     assert got.windowed["transmission"][1] != pytest.approx(got.stationary["transmission"][1],
                                                             rel=1e-3)
     # by hand: a plain Riemann sum of the weights over a fine k grid
-    k = np.linspace(1.0 - 0.4, 1.0 + 0.4, 8001)
+    k = np.linspace(1.0 - 0.4, 1.0 + 0.4, 4001)
     w = np.exp(-0.5 * ((k - 1.0) / 0.05) ** 2)
     sc = fl.floquet_scatter(pot, k ** 2 / 2, hbar=1.0, sidebands=12)
     T1 = sc.order(1)
@@ -155,7 +155,7 @@ def test_packet_averaged_sidebands_are_weighted_means_of_the_stationary_ones():
     for n in range(-sc.sidebands, sc.sidebands + 1):
         inside = np.abs(k ** 2 / 2 + n * 0.15 - (0.5 + 0.15)) < 0.075
         binned += np.sum(w * inside * sc.order(n))
-    assert got.windowed["transmission"][1] == pytest.approx(binned / np.sum(w), rel=1e-3)
+    assert got.windowed["transmission"][1] == pytest.approx(binned / np.sum(w), rel=2e-3)
 
 
 def test_refusals_are_theory_errors():
