@@ -101,6 +101,7 @@ class ChannelReport:
     detector: Optional[float] = None
     snapshots_used: int = 0
     spectrum: Optional[Spectrum] = None
+    sidebands: Optional[list] = None    # a driven run's sideband rows (measure.sidebands)
 
     def to_dict(self, dwell: dict) -> dict:
         f = finite_or_none
@@ -114,6 +115,10 @@ class ChannelReport:
                               "spectral": f(self.probability_spectral)},
             "reference": "filtered" if self.filtered else "free",
             "detector": f(self.detector), "snapshots_used": self.snapshots_used,
+            **({} if self.sidebands is None else {
+                "sidebands": [{k: (v if k == "order" else f(v)) for k, v in row.items()}
+                              for row in self.sidebands],
+                "phase_delays": "undefined for a driven potential (energy is not conserved)"}),
         }
 
 

@@ -4,8 +4,16 @@ run's outgoing packets carry in each sideband, for the run's own PacketInfo.
 Two numbers per channel and order n. ``stationary``: ∫|ψ̃₀(k)|² P_n(k) dk /
 ∫|ψ̃₀|² dk, the probability the packet scatters into sideband n. ``windowed``:
 the probability the outgoing spectrum holds at energies E₀ + nħω ± ħω/2 (the
-window a measurement integrates over), which also counts the tails of the
-neighbouring sidebands where the packet's band is not narrow against ħω.
+window a measurement integrates over). Where the packet's band is not narrow
+against ħω the tails of neighbouring sidebands reach into a window and
+interfere there: the outgoing momentum amplitude is the coherent sum
+
+    C(q) = Σ_n ψ̃₀(k_n) e^{ik_n x_r} t_n(k_n) e^{−iq x_t} q/k_n   (transmission; k_n the
+    incident k with E(k) + nħω = E(q); reflection: r_n, e^{ik_n x_r}, e^{−iq x_r}... see
+    PHYSICS §Driven potentials)
+
+and ``windowed`` integrates |C(q)|² over the window (the drive's phase at t = 0
+and the packet's start enter through t_n and ψ̃₀).
 """
 from __future__ import annotations
 
@@ -19,6 +27,76 @@ from ..errors import TheoryError
 from ..model.packets import PacketInfo
 from .averages import K_SPAN_AVERAGES
 from .floquet import DrivenLayers, driven_layers, floquet_scatter
+
+
+WINDOW_NODES = 32      # Gauss–Legendre nodes per piece of a window (the band's images cut it)
+REACH = 6              # sidebands n' of the incident band that can land in a window
+
+
+def _incident(k, k0, width, center):
+    """ψ̃₀(k) of the Gaussian of PHYSICS §2 (forward frame)."""
+    return ((2 * math.pi * width ** 2) ** -0.25 * width * math.sqrt(2)
+            * np.exp(-(width * (k - k0)) ** 2 - 1j * (k - k0) * center))
+
+
+def coherent_windows(seen: DrivenLayers, k0: float, width: float, center: float, level: float,
+                     energy0: float, orders, hbar: float, mass: float, sidebands: int,
+                     band: tuple) -> dict:
+    """{(channel, n): ∫|C(q)|² dq over E₀ + nħω ± ħω/2} for incidence from the
+    left on `seen` (the forward frame), C the coherent sum of the module note;
+    incident wavenumbers outside `band` (k_lo, k_hi) carry no weight."""
+    c = hbar ** 2 / (2 * mass)
+    hw = hbar * seen.omega
+    x_r, x_t = (float(seen.boundaries[0]), float(seen.boundaries[-1])) if seen.boundaries.size \
+        else (0.0, 0.0)
+    nodes, weights = np.polynomial.legendre.leggauss(WINDOW_NODES)
+    e_lo, e_hi = level + c * band[0] ** 2, level + c * band[1] ** 2
+    out = {}
+    for channel, side in (("reflection", seen.levels[0]), ("transmission", seen.levels[-1])):
+        for n in orders:
+            lo, hi = (energy0 + (n + s) * hw - side for s in (-0.5, 0.5))
+            if hi <= 0:
+                out[(channel, n)] = 0.0
+                continue
+            q_lo, q_hi = math.sqrt(max(lo, 0.0) / c), math.sqrt(hi / c)
+            shifts = np.arange(n - REACH, n + REACH + 1)
+            # the band's images E(k) + n'ħω cut the window: nodes only where some image lies
+            images = [(e_lo + s * hw, e_hi + s * hw) for s in shifts]
+            cuts = {q_lo, q_hi} | {math.sqrt((e - side) / c) for pair in images for e in pair
+                                   if e > side and q_lo < math.sqrt((e - side) / c) < q_hi}
+            cuts = sorted(cuts)
+            q, wq = [], []
+            for a, b in zip(cuts[:-1], cuts[1:]):
+                mid = side + c * (0.5 * (a + b)) ** 2
+                if any(e1 < mid < e2 for e1, e2 in images):
+                    q.append(0.5 * (b - a) * nodes + 0.5 * (a + b))
+                    wq.append(0.5 * (b - a) * weights)
+            if not q:
+                out[(channel, n)] = 0.0
+                continue
+            q, wq = np.concatenate(q), np.concatenate(wq)
+            E_out = side + c * q ** 2
+            E_in = E_out[:, None] - shifts[None, :] * hw          # (nodes, shifts)
+            ok = (E_in > max(seen.levels[0], level) * (1 + 1e-14) + 1e-300) & (
+                E_in >= e_lo) & (E_in <= e_hi)
+            if not ok.any():
+                out[(channel, n)] = 0.0
+                continue
+            sc = floquet_scatter(seen, E_in[ok], hbar=hbar, mass=mass, sidebands=sidebands)
+            k = np.sqrt((E_in[ok] - level) / c)
+            cols = shifts[np.nonzero(ok)[1]] + sc.sidebands
+            inside = (cols >= 0) & (cols < sc.orders.size)
+            rows = np.arange(k.size)
+            amp = sc.t if channel == "transmission" else sc.r
+            a = np.where(inside, amp[rows, np.clip(cols, 0, sc.orders.size - 1)], 0.0)
+            phase = np.exp(1j * k * x_r) * (np.exp(-1j * q[np.nonzero(ok)[0]] * x_t)
+                                             if channel == "transmission"
+                                             else np.exp(1j * q[np.nonzero(ok)[0]] * x_r))
+            terms = _incident(k, k0, width, center) * phase * a * q[np.nonzero(ok)[0]] / k
+            C = np.zeros(q.size, complex)
+            np.add.at(C, np.nonzero(ok)[0], terms)
+            out[(channel, n)] = float(np.sum(wq * np.abs(C) ** 2))
+    return out
 
 
 @dataclass(frozen=True)
@@ -72,20 +150,14 @@ def packet_sidebands(potential, packet: PacketInfo, *, hbar: float, mass: float,
         k = (0.5 * (b - a)[:, None] * x + 0.5 * (a + b)[:, None]).ravel()
         wk = (0.5 * (b - a)[:, None] * w).ravel() * np.exp(-0.5 * ((k - k0) / sk) ** 2)
         E = level + c * k ** 2
-        sc = floquet_scatter(seen, E, hbar=hbar, mass=mass)
-        shift = np.rint((E - E0) / hw).astype(int)        # outgoing n' lands in n' + shift
+        sc = floquet_scatter(seen, E, hbar=hbar, mass=mass, sidebands=N)
         Z = float(np.sum(wk))
-        out = {}
-        for channel in ("reflection", "transmission"):
-            P = sc.T if channel == "transmission" else sc.R
-            for n in orders:
-                out[("stationary", channel, n)] = float(np.sum(wk * sc.order(n, channel))) / Z
-                src = n - shift + sc.sidebands            # column of the sideband landing in n
-                ok = (src >= 0) & (src < P.shape[1])
-                vals = np.where(ok, P[np.arange(len(E)), np.clip(src, 0, P.shape[1] - 1)], 0.0)
-                out[("windowed", channel, n)] = float(np.sum(wk * vals)) / Z
-        return out
+        return {("stationary", channel, n): float(np.sum(wk * sc.order(n, channel))) / Z
+                for channel in ("reflection", "transmission") for n in orders}
 
+    # the sidebands the band needs: converged at its centre and edges, two more kept
+    probe = level + c * np.array([lo, k0, hi]) ** 2
+    N = floquet_scatter(seen, probe, hbar=hbar, mass=mass).sidebands + 2
     count = nodes
     prev = sums(count)
     while count < 16 * nodes:
@@ -94,8 +166,12 @@ def packet_sidebands(potential, packet: PacketInfo, *, hbar: float, mass: float,
         if max(abs(cur[key] - prev[key]) for key in cur) <= tol:
             break
         prev = cur
-    pick = {kind: {ch: {n: cur[(kind, ch, n)] for n in orders}
-                   for ch in ("reflection", "transmission")}
-            for kind in ("stationary", "windowed")}
-    return PacketSidebands(orders, {n: E0 + n * hw for n in orders}, pick["stationary"],
-                           pick["windowed"], layers.omega)
+    # the packet's own normalisation: ∫|ψ̃₀|² dk over the band (1 up to its excluded tails)
+    center = packet.center if direction == "right" else -packet.center
+    win = coherent_windows(seen, k0, packet.width, center, level, E0, orders, hbar, mass, N,
+                           (lo, hi))
+    pick = {ch: {n: cur[("stationary", ch, n)] for n in orders}
+            for ch in ("reflection", "transmission")}
+    windowed = {ch: {n: win[(ch, n)] for n in orders} for ch in ("reflection", "transmission")}
+    return PacketSidebands(orders, {n: E0 + n * hw for n in orders}, pick, windowed,
+                           layers.omega)
