@@ -30,7 +30,6 @@ from .floquet import DrivenLayers, driven_layers, floquet_scatter
 
 
 WINDOW_NODES = 32      # Gauss–Legendre nodes per piece of a window (the band's images cut it)
-REACH = 6              # sidebands n' of the incident band that can land in a window
 
 
 def _incident(k, k0, width, center):
@@ -44,58 +43,49 @@ def coherent_windows(seen: DrivenLayers, k0: float, width: float, center: float,
                      band: tuple) -> dict:
     """{(channel, n): ∫|C(q)|² dq over E₀ + nħω ± ħω/2} for incidence from the
     left on `seen` (the forward frame), C the coherent sum of the module note;
-    incident wavenumbers outside `band` (k_lo, k_hi) carry no weight."""
+    incident wavenumbers outside `band` (k_lo, k_hi) carry no weight.
+
+    An outgoing energy is u + nħω with u in the central window: the incident
+    energies feeding it, u + jħω, serve every window at once, so one Floquet
+    solve on the nodes u (cut where the band's images start and end) and the
+    j that reach the band gives all windows."""
     c = hbar ** 2 / (2 * mass)
     hw = hbar * seen.omega
     x_r, x_t = (float(seen.boundaries[0]), float(seen.boundaries[-1])) if seen.boundaries.size \
         else (0.0, 0.0)
+    e_lo, e_hi = max(level + c * band[0] ** 2, seen.levels[0]), level + c * band[1] ** 2
+    u_lo, u_hi = energy0 - hw / 2, energy0 + hw / 2
+    js = np.arange(int(math.floor((e_lo - u_hi) / hw)), int(math.ceil((e_hi - u_lo) / hw)) + 1)
+    cuts = sorted({u_lo, u_hi} | {e - j * hw for j in js for e in (e_lo, e_hi)
+                                  if u_lo < e - j * hw < u_hi})
     nodes, weights = np.polynomial.legendre.leggauss(WINDOW_NODES)
-    e_lo, e_hi = level + c * band[0] ** 2, level + c * band[1] ** 2
-    out = {}
-    for channel, side in (("reflection", seen.levels[0]), ("transmission", seen.levels[-1])):
+    u = np.concatenate([0.5 * (b - a) * nodes + 0.5 * (a + b) for a, b in zip(cuts[:-1], cuts[1:])])
+    wu = np.concatenate([0.5 * (b - a) * weights for a, b in zip(cuts[:-1], cuts[1:])])
+    E_in = u[:, None] + js[None, :] * hw                      # (nodes, j)
+    ok = (E_in > e_lo) & (E_in < e_hi)
+    out = {(ch, n): 0.0 for ch in ("reflection", "transmission") for n in orders}
+    if not ok.any():
+        return out
+    sc = floquet_scatter(seen, E_in[ok], hbar=hbar, mass=mass, sidebands=sidebands)
+    node, which = np.nonzero(ok)
+    k = np.sqrt((E_in[ok] - level) / c)
+    feed = _incident(k, k0, width, center) * np.exp(1j * k * x_r)
+    rows = np.arange(k.size)
+    for channel, side, amp in (("reflection", seen.levels[0], sc.r),
+                               ("transmission", seen.levels[-1], sc.t)):
         for n in orders:
-            lo, hi = (energy0 + (n + s) * hw - side for s in (-0.5, 0.5))
-            if hi <= 0:
-                out[(channel, n)] = 0.0
-                continue
-            q_lo, q_hi = math.sqrt(max(lo, 0.0) / c), math.sqrt(hi / c)
-            shifts = np.arange(n - REACH, n + REACH + 1)
-            # the band's images E(k) + n'ħω cut the window: nodes only where some image lies
-            images = [(e_lo + s * hw, e_hi + s * hw) for s in shifts]
-            cuts = {q_lo, q_hi} | {math.sqrt((e - side) / c) for pair in images for e in pair
-                                   if e > side and q_lo < math.sqrt((e - side) / c) < q_hi}
-            cuts = sorted(cuts)
-            q, wq = [], []
-            for a, b in zip(cuts[:-1], cuts[1:]):
-                mid = side + c * (0.5 * (a + b)) ** 2
-                if any(e1 < mid < e2 for e1, e2 in images):
-                    q.append(0.5 * (b - a) * nodes + 0.5 * (a + b))
-                    wq.append(0.5 * (b - a) * weights)
-            if not q:
-                out[(channel, n)] = 0.0
-                continue
-            q, wq = np.concatenate(q), np.concatenate(wq)
-            E_out = side + c * q ** 2
-            E_in = E_out[:, None] - shifts[None, :] * hw          # (nodes, shifts)
-            ok = (E_in > max(seen.levels[0], level) * (1 + 1e-14) + 1e-300) & (
-                E_in >= e_lo) & (E_in <= e_hi)
-            if not ok.any():
-                out[(channel, n)] = 0.0
-                continue
-            sc = floquet_scatter(seen, E_in[ok], hbar=hbar, mass=mass, sidebands=sidebands)
-            k = np.sqrt((E_in[ok] - level) / c)
-            cols = shifts[np.nonzero(ok)[1]] + sc.sidebands
-            inside = (cols >= 0) & (cols < sc.orders.size)
-            rows = np.arange(k.size)
-            amp = sc.t if channel == "transmission" else sc.r
-            a = np.where(inside, amp[rows, np.clip(cols, 0, sc.orders.size - 1)], 0.0)
-            phase = np.exp(1j * k * x_r) * (np.exp(-1j * q[np.nonzero(ok)[0]] * x_t)
-                                             if channel == "transmission"
-                                             else np.exp(1j * q[np.nonzero(ok)[0]] * x_r))
-            terms = _incident(k, k0, width, center) * phase * a * q[np.nonzero(ok)[0]] / k
-            C = np.zeros(q.size, complex)
-            np.add.at(C, np.nonzero(ok)[0], terms)
-            out[(channel, n)] = float(np.sum(wq * np.abs(C) ** 2))
+            kinetic = u + n * hw - side
+            open_ = kinetic > 0
+            q = np.sqrt(np.where(open_, kinetic, 0.0) / c)
+            col = n - js[which] + sc.sidebands            # the sideband n − j lands in window n
+            inside = (col >= 0) & (col < sc.orders.size) & open_[node]
+            a = np.where(inside, amp[rows, np.clip(col, 0, sc.orders.size - 1)], 0.0)
+            qn = q[node]
+            phase = np.exp(-1j * qn * x_t) if channel == "transmission" else np.exp(1j * qn * x_r)
+            C = np.zeros(u.size, complex)
+            np.add.at(C, node, feed * phase * a * qn / k)
+            dq_dE = np.where(open_, 1.0 / (2 * c * np.where(open_, q, 1.0)), 0.0)
+            out[(channel, n)] = float(np.sum(wu * dq_dE * np.abs(C) ** 2))
     return out
 
 
