@@ -90,6 +90,21 @@ class TimeDependence:
         return out
 
 
+def _split_part(f, where, S, dims):
+    """(f, slice of cells with S = 1 or None, index of the other cells, their S):
+    a drive on an interval costs one multiply inside it and an exp on its edges."""
+    S = np.asarray(S, dtype=float)
+    if dims != 1 or S.ndim != 1 or not isinstance(where, slice):
+        return f, None, where, S
+    start = where.start or 0
+    ones = np.nonzero(S == 1.0)[0]
+    if ones.size and ones[-1] - ones[0] + 1 == ones.size:     # contiguous: an interval
+        full = slice(start + int(ones[0]), start + int(ones[-1]) + 1)
+        rest = np.nonzero(S != 1.0)[0]
+        return f, full, start + rest, S[rest]
+    return f, None, where, S
+
+
 def _check_scheme(name: str, scheme: Scheme) -> Scheme:
     w = scheme.drifts
     if not w or not all(math.isfinite(c) for c in w):
@@ -170,6 +185,8 @@ class Propagator:
         if drive is not None and not isinstance(drive, TimeDependence):
             raise ValueError(f"drive must be a TimeDependence or None (got {type(drive).__name__})")
         self.drive = drive if drive is not None and (drive.parts or drive.fields) else None
+        self._parts = [_split_part(*part, len(grid.shape) if hasattr(grid, "shape") else 1)
+                       for part in (self.drive.parts if self.drive else ())]
         self._weights = weights
         self._starts = [sum(weights[:j]) for j in range(len(weights))]
         self.hbar, self.mass = _positive("hbar", hbar), _positive("mass", mass)
@@ -335,10 +352,12 @@ class Propagator:
         """Multiply the buffer by exp(−i Σ c·d(t) Δt/ħ) over the kick halves (c, t)
         (d the drive's addition to V)."""
         buf, scale = self.buffer, self.dt / self.hbar
-        for f, where, S in self.drive.parts:
+        for f, full, edges, S in self._parts:
             angle = scale * sum(c * f(t) for c, t in halves)
             if angle:
-                buf[where] *= np.exp(-1j * angle * S)
+                if full is not None:     # cells wholly inside: one phase, a plain multiply
+                    buf[..., full] *= complex(math.cos(angle), -math.sin(angle))
+                buf[..., edges] *= np.exp(-1j * angle * S)
         for field in self.drive.fields:
             buf *= np.exp(-1j * scale * sum(c * field(t) for c, t in halves))
 
