@@ -405,7 +405,13 @@ def _drive_findings(s, add) -> None:
     if not drives:
         return
     hw = hbar * max(d.angular_frequency for d, _ in drives)
-    beta = sum(abs(d.amplitude) for d, _ in drives) / hw
+    swing = sum(abs(d.amplitude) for d, _ in drives)
+    beta = swing / hw
+    phase = s.grid_phase + 2 * swing * s.dt / hbar     # V's range grows by the drive's swing
+    if phase >= 2 * math.pi > s.grid_phase:
+        add(Finding("error", "evolve.dt",
+                    f"with the drive's swing ±{swing:.4g} {units.energy}, Δt·(E_max + ΔV)/ħ = "
+                    f"{phase:.3g} is past the grid limit 2π; use a smaller dt", forceable=True))
     n_max = int(math.ceil(beta)) + SIDEBAND_REACH
     kinetic = info.energy - info.level + n_max * hw
     k_top = math.sqrt(2 * mass * kinetic) / hbar + 6 * info.sigma_k
