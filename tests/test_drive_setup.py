@@ -91,3 +91,19 @@ def test_guards_on_a_driven_run():
     assert any("overlap" in f.message for f in setup.warnings() if f.key == "packet.width")
     setup = build(driven({"amplitude": 0.01, "angular_frequency": 0.4}))
     assert not any("overlap" in f.message for f in setup.warnings())
+
+
+def test_theory_table_of_a_driven_scenario():
+    from pathlib import Path
+    from sojourn.config.scenario import load
+    from sojourn.theory.tables import format_table, theory_table
+    table = theory_table(load(Path(__file__).resolve().parents[1] / "configs" /
+                              "driven_barrier.yaml"))
+    drive = table["drive"]
+    # τ_BL = m d/(ħκ), κ = √(2m(V₀ − E₀))/ħ: d = 2, V₀ − E₀ = 0.3 (Büttiker & Landauer 1982)
+    assert drive["tau_bl"] == pytest.approx(2.0 / math.sqrt(0.6), rel=1e-12)
+    ratio = [r for r in drive["asymmetry"]["T_plus_over_T_minus"] if r is not None]
+    assert len(ratio) >= 5 and all(b > a for a, b in zip(ratio, ratio[1:]))
+    assert sum(drive["packet_sidebands"]["stationary_transmission"]) < table["packet"][
+        "transmission"]["probability"] * 1.2
+    assert "Buttiker-Landauer time" in format_table(table)
