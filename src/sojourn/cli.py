@@ -92,7 +92,7 @@ def _verify(path):
     from . import workflows
     _warn("verifying: two reruns of the scenario (2× finer grid at Δt/4, about 8× the "
           "run's cost; and Δt/2, about 2×) — this takes a while")
-    return workflows.verify(path, progress=warn)
+    return workflows.verify(path, progress=_warn)
 
 
 def cmd_check(args) -> int:

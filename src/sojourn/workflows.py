@@ -156,6 +156,23 @@ def _richardson(base, finer, order_ratio):
     return abs(base - finer) * order_ratio / (order_ratio - 1)
 
 
+def _sideband_errors(channel, base, reruns, order, moves) -> None:
+    """A driven run: each sideband probability's Richardson error, as for the delays."""
+    if not base.sidebands:
+        return
+    finer = {name: {r["order"]: r["probability"] for r in (getattr(rep, channel).sidebands or [])}
+             for name, rep in reruns.items() if getattr(rep, channel) is not None}
+    for row in base.sidebands:
+        n, p = row["order"], row["probability"]
+        grid, time = finer.get("grid", {}).get(n), finer.get("time", {}).get(n)
+        err = max(_richardson(p, grid, 4.0) if grid is not None else 0.0,
+                  _richardson(p, time, 2.0 ** order) if time is not None else 0.0)
+        row["error"] = SAFETY * err
+        moves[f"{channel}.sideband{n:+d}"] = {
+            "grid": math.nan if grid is None else grid - p,
+            "time": math.nan if time is None else time - p, "error": row["error"]}
+
+
 def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
            keep: Optional[Path] = None) -> Convergence:
     """Rerun the scenario of a run file on a 2× finer grid with Δt/4 and at Δt/2
@@ -213,6 +230,7 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
                     "grid": values.get("grid", math.nan) - result.delay,
                     "time": values.get("time", math.nan) - result.delay,
                     "error": result.error}
+            _sideband_errors(channel, b, reruns, order, moves)
         return Convergence(base, reruns["grid"], reruns["time"], moves)
     finally:
         if keep is None:

@@ -114,3 +114,17 @@ def test_delay_json_of_a_driven_run(tmp_path):
         assert "undefined" in out[channel]["phase_delays"]
         assert out[channel]["measured"] == {}
     assert out["warnings"] == []
+
+
+@pytest.mark.slow
+def test_verified_sideband_error_bars_cover_the_deviation(tmp_path):
+    # Richardson error bars from the 2N and Δt/2 reruns (as for the delays) hold each
+    # sideband's deviation from its Floquet prediction
+    from sojourn.workflows import run, verify
+    path = tmp_path / "driven.yaml"
+    path.write_text(SMALL.replace("OUT", str(tmp_path / "d.h5")))
+    out = run(build(load(path)), tmp_path / "d.h5")
+    report = verify(out).report.to_dict()
+    for channel in ("reflection", "transmission"):
+        for row in report[channel]["sidebands"]:
+            assert row["error"] is not None and abs(row["deviation"]) <= row["error"], row
