@@ -107,3 +107,11 @@ def test_theory_table_of_a_driven_scenario():
     assert sum(drive["packet_sidebands"]["stationary_transmission"]) < table["packet"][
         "transmission"]["probability"] * 1.2
     assert "Buttiker-Landauer time" in format_table(table)
+
+
+def test_a_ramp_lasting_past_the_arrival_is_a_warning():
+    # the packet (centre −100, width 10, v₀ = 1) reaches the barrier near t ≈ 70
+    late = build(driven({"amplitude": 0.05, "angular_frequency": 0.4, "ramp": 200.0}))
+    early = build(driven({"amplitude": 0.05, "angular_frequency": 0.4, "ramp": 20.0}))
+    assert any("ramp" in f.message for f in late.warnings())
+    assert not any("ramp" in f.message for f in early.warnings())

@@ -427,8 +427,9 @@ def _drive_findings(s, add) -> None:
                     f"the packet's energy spread σ_E = {sigma_E:.3g} {units.energy} is not below "
                     f"ħω/3 = {hw / 3:.3g}: its sidebands overlap in the outgoing spectrum; "
                     f"a packet wider than {info.width * 3 * sigma_E / hw:.4g} separates them"))
-    arrival = max(abs((s.potential.support() or (0.0, 0.0))[0] - info.center) - 3 * info.width,
-                  0.0) / max(abs(info.group_velocity), 1e-300)
+    edges = s.potential.support() or (info.center, info.center)
+    arrival = max(min(abs(e - info.center) for e in edges) - 3 * info.width, 0.0) / max(
+        abs(info.group_velocity), 1e-300)
     late = [d.ramp for d, _ in drives if d.ramp is not None and d.ramp > arrival]
     if late:
         add(Finding("warning", "potential",
