@@ -11,7 +11,7 @@ import pytest
 from sojourn.build import build
 from sojourn.config.scenario import loads
 from sojourn.errors import ScenarioError
-from sojourn.guards import STEPS_PER_PERIOD
+from sojourn.guards_drive import STEPS_PER_PERIOD
 from scenarios import small_step
 
 DRIVE = {"amplitude": 0.05, "angular_frequency": 0.3}

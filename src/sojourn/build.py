@@ -17,8 +17,9 @@ from .engine.propagate import TimeDependence
 from .config.scenario import Scenario
 from .errors import ScenarioError, SojournError
 from .theory.scattering import scatter
-from .guards import (DEFAULT_DT_PHASE, STEPS_PER_PERIOD, Finding, guard, refuse_endless,
-                     refuse_oversized, time_step_limit)
+from .guards import (DEFAULT_DT_PHASE, Finding, guard, refuse_endless, refuse_oversized,
+                     time_step_limit)
+from .guards_drive import STEPS_PER_PERIOD, drive_findings
 
 
 @dataclass
@@ -391,6 +392,7 @@ def _build(scenario: Scenario) -> Setup:
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
                   sample_steps, detectors, reference, region, findings, drive)
     guard(setup, limit, absorber_width)
+    drive_findings(setup)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup
