@@ -16,7 +16,8 @@ ROOT = Path(__file__).resolve().parents[1]
 SCATTERING = ["configs/step.yaml", "configs/barrier.yaml", "configs/smooth_step.yaml",
               "configs/double_barrier.yaml", "configs/step_small.yaml",
               "configs/larmor_clock.yaml", "src/sojourn/data/demo.yaml"]
-SHIPPED = SCATTERING + ["configs/harmonic.yaml"]
+SHIPPED = SCATTERING + ["configs/harmonic.yaml", "configs/driven_barrier.yaml"]
+# driven_barrier measures sidebands, not delays: tests/physics/test_sidebands_measure.py
 QUICK = ["src/sojourn/data/demo.yaml", "configs/step.yaml", "configs/step_small.yaml",
          "configs/barrier.yaml", "configs/larmor_clock.yaml"]     # a few seconds each here
 

@@ -115,7 +115,8 @@ def sojourn_loop(setup: Setup, threads: Optional[int] = None,
     its default rate, unless not `sampled`), and the number of threads its FFTs use."""
     single = setup.scenario.evolve.precision == "single"
     prop = Propagator(setup.grid, setup.V, setup.hbar, setup.mass, setup.dt,
-                      setup.scenario.evolve.scheme, setup.W, single=single, threads=threads)
+                      setup.scenario.evolve.scheme, setup.W, single=single, threads=threads,
+                      drive=setup.drive)
     prop.set_state(setup.psi0())
     sampler = Sampler(setup)
     state = {"step": 0}

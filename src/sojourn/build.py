@@ -14,11 +14,13 @@ from .model.grid import Grid
 from .model.potentials import Potential
 from .model.absorber import absorber_profile, default_absorber_strength
 from .model.spin import clock_region, spin_potentials
+from .engine.propagate import TimeDependence
 from .config.scenario import Scenario
 from .errors import ScenarioError, SojournError
 from .theory.scattering import scatter
 from .guards import (DEFAULT_DT_PHASE, Finding, guard, refuse_endless, refuse_oversized,
                      time_step_limit)
+from .guards_drive import STEPS_PER_PERIOD, drive_findings
 
 
 @dataclass
@@ -40,6 +42,7 @@ class Setup:
     reference: float
     region: Optional[tuple[float, float]]
     findings: list = field(default_factory=list)
+    drive: Optional[TimeDependence] = None     # what V gains in time; None: static
 
     @property
     def hbar(self) -> float:
@@ -357,6 +360,7 @@ def _build(scenario: Scenario) -> Setup:
     limit = time_step_limit(kinetic_max, v_range, hbar)
     if scenario.evolve.dt is None:
         dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
+        dt = min([dt] + [d.period / STEPS_PER_PERIOD for d, _ in potential.drives()])
         dt_chosen = True
     else:
         dt, dt_chosen = scenario.evolve.dt, False
@@ -411,9 +415,11 @@ def _build(scenario: Scenario) -> Setup:
     if clock is not None:   # a spinor: one potential per spin component
         V = spin_potentials(V, grid.x, grid.dx, clock[0], hbar * clock[1])
         findings += _clock_findings(clock[0], grid, absorber_width, info)
+    drive = TimeDependence.of_potential(potential, grid.x, grid.dx) if potential.driven else None
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
-                  sample_steps, detectors, reference, region, findings)
+                  sample_steps, detectors, reference, region, findings, drive)
     guard(setup, limit, absorber_width)
+    drive_findings(setup)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup

@@ -76,6 +76,15 @@ def format_delay_report(report, moves=None) -> list:
     """The delay report as lines of text: one table per channel, warnings below."""
     lines = [f"{report.file}  (times in {report.units.get('time', '')})"]
     for ch in report.channels():
+        if ch.sidebands is not None:      # a driven run: sidebands, no phase delays
+            lines += ["", f"{ch.channel}: probability {ch.probability:.6g}; sidebands "
+                          f"(energy in {report.units.get('energy', '')})",
+                      f"  {'order':>5}{'energy':>12}{'measured':>14}{'predicted':>14}"
+                      f"{'deviation':>12}"]
+            lines += [f"  {r['order']:>+5d}{num(r['energy'], 5):>12}{num(r['probability'], 6):>14}"
+                      f"{num(r['predicted'], 6):>14}{num(r['deviation'], 3):>12}"
+                      for r in ch.sidebands]
+            continue
         lines += ["", f"{ch.channel}: probability {ch.probability:.6g} (detector flux "
                       f"{num(ch.probability_flux, 6)}, spectrum {num(ch.probability_spectral, 6)}; "
                       f"theory {num(ch.predicted_probability, 6)}); reference: "
@@ -104,6 +113,8 @@ def format_delay_report(report, moves=None) -> list:
         lines += ["", "convergence (how far each delay moves):"]
         lines += [f"  {key:<24} 2N & Δt/4: {m['grid']:+.3g}   Δt/2: {m['time']:+.3g}   "
                   f"error bar ±{m['error']:.2g}" for key, m in moves.items()]
+    if report.notes and any(ch.sidebands is not None for ch in report.channels()):
+        lines += [""] + [f"note: {n}" for n in report.notes]
     if report.warnings:
         lines += [""] + [f"warning: {w}" for w in report.warnings]
     return lines

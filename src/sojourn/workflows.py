@@ -180,6 +180,21 @@ def _clock_error_bars(channel: str, block: dict, reruns: dict, order: int, moves
         moves[f"{channel}.larmor.{key}"] = {"grid": values.get("grid", math.nan) - base,
                                             "time": values.get("time", math.nan) - base,
                                             "error": block[key]["error"]}
+def _sideband_errors(channel, base, reruns, order, moves) -> None:
+    """A driven run: each sideband probability's Richardson error, as for the delays."""
+    if not base.sidebands:
+        return
+    finer = {name: {r["order"]: r["probability"] for r in (getattr(rep, channel).sidebands or [])}
+             for name, rep in reruns.items() if getattr(rep, channel) is not None}
+    for row in base.sidebands:
+        n, p = row["order"], row["probability"]
+        grid, time = finer.get("grid", {}).get(n), finer.get("time", {}).get(n)
+        err = max(_richardson(p, grid, 4.0) if grid is not None else 0.0,
+                  _richardson(p, time, 2.0 ** order) if time is not None else 0.0)
+        row["error"] = SAFETY * err
+        moves[f"{channel}.sideband{n:+d}"] = {
+            "grid": math.nan if grid is None else grid - p,
+            "time": math.nan if time is None else time - p, "error": row["error"]}
 
 
 def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
@@ -241,6 +256,7 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
                     "error": result.error}
             if b.larmor is not None:
                 _clock_error_bars(channel, b.larmor, reruns, order, moves)
+            _sideband_errors(channel, b, reruns, order, moves)
         return Convergence(base, reruns["grid"], reruns["time"], moves)
     finally:
         if keep is None:

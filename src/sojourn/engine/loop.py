@@ -74,7 +74,8 @@ def evolve(setup, recorder, state: Optional[dict] = None,
     watch = _Watch(stop, checkpoint_seconds) if (stop or checkpoint_seconds) else None
     try:
         prop = Propagator(setup.grid, setup.V, setup.hbar, setup.mass, setup.dt,
-                          sc.evolve.scheme, setup.W, single=sc.evolve.precision == "single")
+                          sc.evolve.scheme, setup.W, single=sc.evolve.precision == "single",
+                          drive=getattr(setup, "drive", None))
         if state is not None:
             sampler = Sampler(setup, state["raw_absorbed"], prop.closing_kick)
             step = int(state["step"])

@@ -4,6 +4,7 @@ prediction (PHYSICS §5): every method of `METHODS` on every outgoing channel
 time, and the run's health warnings. Everything is in the scenario's units."""
 from __future__ import annotations
 
+import math
 from pathlib import Path
 from typing import Optional
 
@@ -17,6 +18,7 @@ from . import health, larmor
 from .frame import ForwardRun, predictions, snapshot_stats
 from .methods import METHODS, channel_context
 from .report import ChannelReport, DelayReport
+from .sidebands import UNDEFINED, sideband_entries
 
 DWELL_WARN = 3.0   # a dwell deviation this many times the grid's allowance is flagged
 READER = ("x", "V", "absorber", "times", "psi", "snapshots", "observables", "samples", "packet",
@@ -47,12 +49,16 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
         if len(run.times) < 2:
             raise MeasureError(f"{rf.path}: the run holds fewer than two snapshots; "
                                "nothing to measure")
-        prediction, why = predictions(potential, PacketInfo(**rf.packet), run.hbar, run.mass,
-                                      rf.reference, run.region)
+        packet = PacketInfo(**rf.packet)
+        if potential.driven:     # no stationary delays: the sidebands are measured instead
+            prediction, why = None, None
+        else:
+            prediction, why = predictions(potential, packet, run.hbar, run.mass, rf.reference,
+                                          run.region)
         report = measure_run(run, ref, prediction, why, path=str(rf.path), units=rf.units,
-                             status=rf.status)
+                             status=rf.status, potential=potential, packet=packet)
         if larmor.is_spinor(rf):
-            attach_clock(report, run, rf.scenario(), PacketInfo(**rf.packet))
+            attach_clock(report, run, rf.scenario(), packet)
         return report
     finally:
         for f in opened:
@@ -84,21 +90,34 @@ def attach_clock(report: DelayReport, run: ForwardRun, scenario, packet: PacketI
 
 
 def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Optional[str], *,
-                path: str, units: dict, status: str) -> DelayReport:
+                path: str, units: dict, status: str, potential=None,
+                packet: Optional[PacketInfo] = None) -> DelayReport:
     """The report of a run in the forward frame, given theory's prediction
-    (None, with the reason `why`, when there is none)."""
+    (None, with the reason `why`, when there is none). A driven `potential`
+    (with the run's signed `packet`) gets each channel's sidebands instead of
+    phase-delay predictions."""
     warnings = health.before_measuring(run, status)
     stats = snapshot_stats(run)
     channels, notes = {}, []
+    driven = potential is not None and potential.driven and packet is not None
     for channel, side in (("reflection", "left"), ("transmission", "right")):
         final = float(run.observables[f"P_{side}"][-1] + run.observables[f"absorbed_{side}"][-1])
-        if final > health.CHANNEL_MIN:
+        if final > health.CHANNEL_MIN and driven:   # no phase delays to measure
+            channels[channel] = ChannelReport(channel, final, None, None, {})
+        elif final > health.CHANNEL_MIN:
             channels[channel] = measure_channel(run, stats, channel, warnings, ref)
         else:
             channels[channel] = None
             notes.append(f"{channel} not measured: its probability {max(final, 0.0):.2g} is "
                          f"below {health.CHANNEL_MIN:g}, no outgoing packet to time")
-    if prediction is None:
+    if driven:
+        measured = [c for c, r in channels.items() if r is not None]
+        blocks, found = sideband_entries(run, stats, potential, packet, measured)
+        warnings += found
+        for channel, rows in blocks.items():
+            channels[channel].sidebands = rows
+        notes.append(f"phase delays are {UNDEFINED}")
+    elif prediction is None:
         warnings.append(f"no theory prediction: {why}")
     else:
         for channel, report in channels.items():
@@ -115,10 +134,19 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
                         f"(relative), more than {DWELL_WARN:g}× what the grid allows "
                         f"(±{max(dwell['grid_error'] or 0.0, 1e-3):.1e}): was the packet still "
                         "in the region when the run ended, or there at its start?")
+    shifts = _sideband_shifts(potential, run.hbar) if driven else (0.0,)
     warnings += health.after_measuring(run, stats, channels["reflection"],
-                                       channels["transmission"])
+                                       channels["transmission"], shifts)
     return DelayReport(path, units, channels["reflection"], channels["transmission"], dwell,
                        warnings, run.info.energy, notes)
+
+
+def _sideband_shifts(potential, hbar) -> tuple:
+    """The energies n·ħω the outgoing spectrum legitimately reaches (health's k-band)."""
+    from_drive = max((d.angular_frequency for d, _ in potential.drives()), default=0.0)
+    beta = sum(abs(d.amplitude) for d, _ in potential.drives()) / max(hbar * from_drive, 1e-300)
+    reach = int(math.ceil(beta)) + 6 if from_drive else 0
+    return tuple(n * hbar * from_drive for n in range(-reach, reach + 1))
 
 
 def measure_channel(run: ForwardRun, stats: dict, channel: str, warnings: list,

@@ -64,8 +64,9 @@ def share_above_top(run: ForwardRun) -> tuple[float, float]:
 
 
 def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelReport],
-                    transmission: Optional[ChannelReport]) -> list:
-    """Warnings about the run as a whole, after the channels were measured."""
+                    transmission: Optional[ChannelReport], shifts=(0.0,)) -> list:
+    """Warnings about the run as a whole, after the channels were measured;
+    `shifts` are the energies a drive's sidebands move the band by (n·ħω)."""
     warnings = []
     info, hbar, m = run.info, run.hbar, run.mass
     share, top = share_above_top(run)
@@ -90,10 +91,12 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
     spectrum = spectrum.reshape(-1, spectrum.shape[-1]).sum(axis=0)   # spin components add
     kgrid = np.abs(2 * math.pi * np.fft.fftfreq(psi.shape[-1], d=run.dx))
     band = np.abs(kgrid - info.k0) <= K_SPAN * info.sigma_k
-    shift = 2 * m * (run.level_out - info.level) / hbar ** 2
     edges = [max(info.k0 - K_SPAN * info.sigma_k, 0.0), info.k0 + K_SPAN * info.sigma_k]
-    q_lo, q_hi = (math.sqrt(max(e * e - shift, 0.0)) for e in edges)
-    band |= (kgrid >= q_lo) & (kgrid <= q_hi)       # the transmitted wavenumbers
+    for gained in shifts:      # each sideband's band, on both sides
+        for level in (info.level, run.level_out):
+            shift = 2 * m * (level - info.level - gained) / hbar ** 2
+            q_lo, q_hi = (math.sqrt(max(e * e - shift, 0.0)) for e in edges)
+            band |= (kgrid >= q_lo) & (kgrid <= q_hi)
     # per unit incident probability (Parseval: Σ|ψ̃|² = N Σ|ψ|²), not per unit of what
     # is left: after a long run the little left in the box need not be in the band
     incident = float(run.observables["norm"][0])

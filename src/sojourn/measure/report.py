@@ -102,6 +102,7 @@ class ChannelReport:
     snapshots_used: int = 0
     spectrum: Optional[Spectrum] = None
     larmor: Optional[dict] = None       # a spinor run's clock (measure.larmor.larmor_entry)
+    sidebands: Optional[list] = None    # a driven run's sideband rows (measure.sidebands)
 
     def to_dict(self, dwell: dict) -> dict:
         f = finite_or_none
@@ -115,6 +116,10 @@ class ChannelReport:
                               "spectral": f(self.probability_spectral)},
             "reference": "filtered" if self.filtered else "free",
             "detector": f(self.detector), "snapshots_used": self.snapshots_used,
+            **({} if self.sidebands is None else {
+                "sidebands": [{k: (v if k == "order" else f(v)) for k, v in row.items()}
+                              for row in self.sidebands],
+                "phase_delays": "undefined for a driven potential (energy is not conserved)"}),
         }
         if self.larmor is not None:
             out["larmor"] = _strict(self.larmor)

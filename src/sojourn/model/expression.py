@@ -1,4 +1,4 @@
-"""Safe arithmetic formulas in x for potential terms.
+"""Safe arithmetic formulas in x (and the time t) for potential terms.
 
 A formula is parsed with `ast` and checked against a whitelist of names,
 functions and operators; it is then evaluated by walking the checked tree with
@@ -37,6 +37,7 @@ ARITY = {name: (1, 1) for name in FUNCTIONS}
 ARITY.update({"heaviside": (1, 2), "where": (3, 3), "minimum": (2, 2), "maximum": (2, 2),
               "clip": (3, 3)})
 CONSTANTS = {"pi": np.pi, "e": np.e}
+VARIABLES = ("x", "t")   # position and time; a formula using t is a driven potential
 BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
           ast.Div: operator.truediv, ast.Pow: operator.pow}
 UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
@@ -45,7 +46,7 @@ COMPARE = {ast.Lt: operator.lt, ast.LtE: operator.le, ast.Gt: operator.gt,
 
 
 class ExpressionError(ValueError):
-    """A formula that is not a plain arithmetic expression in x."""
+    """A formula that is not a plain arithmetic expression in x and t."""
 
 
 def _check(node: ast.AST, depth: int = 0) -> None:
@@ -65,9 +66,9 @@ def _check(node: ast.AST, depth: int = 0) -> None:
             raise ExpressionError(f"the number {_short(node.value)} is too large for a float")
         return
     if isinstance(node, ast.Name):
-        if node.id != "x" and node.id not in CONSTANTS:
+        if node.id not in VARIABLES and node.id not in CONSTANTS:
             raise ExpressionError(
-                f"unknown name '{node.id}' (allowed: x, {', '.join(CONSTANTS)}, "
+                f"unknown name '{node.id}' (allowed: x, t, {', '.join(CONSTANTS)}, "
                 f"and the functions {', '.join(sorted(FUNCTIONS))})")
         return
     if isinstance(node, ast.BinOp) and type(node.op) in BINARY:
@@ -94,7 +95,8 @@ def _check(node: ast.AST, depth: int = 0) -> None:
             _check(arg, depth + 1)
         return
     raise ExpressionError(f"'{type(node).__name__}' is not allowed in a formula "
-                          "(only numbers, x, + - * / **, comparisons and whitelisted functions)")
+                          "(only numbers, x, t, + - * / **, comparisons and whitelisted "
+                          "functions)")
 
 
 def _short(value, limit: int = 40) -> str:
@@ -131,14 +133,14 @@ def parse(text: str) -> ast.Expression:
 
 
 def _fold(node: ast.AST):
-    """The value of a part that does not depend on x (None if it does); a constant
+    """The value of a part that depends on neither x nor t (None if it does); a constant
     part that is not finite (9**9**9, 1/0, log(0)) is refused here, before any grid."""
     children = [node.left, node.right] if isinstance(node, ast.BinOp) else \
         [node.operand] if isinstance(node, ast.UnaryOp) else \
         [node.left, node.comparators[0]] if isinstance(node, ast.Compare) else \
         list(node.args) if isinstance(node, ast.Call) else []
     values = [_fold(child) for child in children]
-    if isinstance(node, ast.Name) and node.id == "x" or any(v is None for v in values):
+    if isinstance(node, ast.Name) and node.id in VARIABLES or any(v is None for v in values):
         return None
     with np.errstate(all="ignore"):
         value = np.asarray(_eval(node, np.zeros(1)), dtype=float)
@@ -148,26 +150,34 @@ def _fold(node: ast.AST):
     return value
 
 
-def _eval(node: ast.AST, x: np.ndarray):
+def _eval(node: ast.AST, x: np.ndarray, t=0.0):
     if isinstance(node, ast.Expression):
-        return _eval(node.body, x)
+        return _eval(node.body, x, t)
     if isinstance(node, ast.Constant):
         return np.float64(float(node.value))
     if isinstance(node, ast.Name):
-        return x if node.id == "x" else np.float64(CONSTANTS[node.id])
+        return x if node.id == "x" else np.float64(t) if node.id == "t" else \
+            np.float64(CONSTANTS[node.id])
     if isinstance(node, ast.BinOp):
-        return BINARY[type(node.op)](_eval(node.left, x), _eval(node.right, x))
+        return BINARY[type(node.op)](_eval(node.left, x, t), _eval(node.right, x, t))
     if isinstance(node, ast.UnaryOp):
-        return UNARY[type(node.op)](_eval(node.operand, x))
+        return UNARY[type(node.op)](_eval(node.operand, x, t))
     if isinstance(node, ast.Compare):
-        return COMPARE[type(node.ops[0])](_eval(node.left, x), _eval(node.comparators[0], x))
+        return COMPARE[type(node.ops[0])](_eval(node.left, x, t),
+                                          _eval(node.comparators[0], x, t))
     if isinstance(node, ast.Call):
-        return FUNCTIONS[node.func.id](*[_eval(a, x) for a in node.args])
+        return FUNCTIONS[node.func.id](*[_eval(a, x, t) for a in node.args])
     raise ExpressionError(f"'{type(node).__name__}' is not allowed")  # unreachable after _check
 
 
-def evaluate(tree: ast.Expression, x: np.ndarray) -> np.ndarray:
-    """Values of a checked formula at the points x (float array of x's shape).
+def uses_time(tree: ast.Expression) -> bool:
+    """Whether a checked formula depends on the time t."""
+    return any(isinstance(node, ast.Name) and node.id == "t" for node in ast.walk(tree))
+
+
+def evaluate(tree: ast.Expression, x: np.ndarray, t: float = 0.0) -> np.ndarray:
+    """Values of a checked formula at the points x and the time t (float array
+    of x's shape).
 
     Work and memory are bounded by the checks: at most MAX_NODES operations on
     arrays of x's size, and at most MAX_DEPTH of them alive at once. Values may
@@ -176,7 +186,7 @@ def evaluate(tree: ast.Expression, x: np.ndarray) -> np.ndarray:
     x.flags.writeable = False
     with np.errstate(all="ignore"):
         try:
-            values = _eval(tree, x)
+            values = _eval(tree, x, float(t))
             values = np.broadcast_to(np.asarray(values, dtype=float), x.shape).copy()
         except (TypeError, ValueError, OverflowError, ZeroDivisionError) as exc:
             raise ExpressionError(f"cannot evaluate the formula ({_short(str(exc), 80)})") from None

@@ -14,10 +14,11 @@ from typing import Optional
 import numpy as np
 
 from .sampled import Expression, Table
-from .terms import (TAIL, Barrier, DeltaLike, Gaussian, Harmonic, Ramp, Sech2, Shape,
+from .terms import (TAIL, Barrier, DeltaLike, Drive, Gaussian, Harmonic, Ramp, Sech2, Shape,
                     SmoothStep, Step, Term, Well)
 
-__all__ = ["TERMS", "Potential", "Shape", "Term", "TAIL", "Step", "Barrier", "Well", "Ramp",
+__all__ = ["TERMS", "Potential", "Shape", "Term", "Drive", "TAIL", "Step", "Barrier", "Well",
+           "Ramp",
            "DeltaLike", "Gaussian", "SmoothStep", "Sech2", "Harmonic", "Table", "Expression"]
 
 CHUNK = 1 << 18   # points evaluated at a time (a formula holds ~depth arrays of this size)
@@ -106,3 +107,39 @@ class Potential:
 
     def describe(self) -> str:
         return " + ".join(t.describe() for t in self.terms) or "free (V = 0)"
+
+    # -- drives: what changes in time (PHYSICS §Driven potentials) --------------------------
+
+    def drives(self) -> list[tuple[Drive, tuple[float, float]]]:
+        """(drive, interval it acts on) of each driven term, in term order; a
+        term with no finite drive support of its own uses the extent seen on
+        the span (a formula's)."""
+        out = []
+        for term, shape in zip(self.terms, self.shapes):
+            if term.drive is None:
+                continue
+            a, b = term.drive_support()
+            if not (math.isfinite(a) or math.isfinite(b)) and shape.support is not None:
+                a, b = shape.support
+            out.append((term.drive, (float(a), float(b))))
+        return out
+
+    def time_formulas(self) -> list[Expression]:
+        """The formula terms that use t (re-evaluated by the engine at every kick)."""
+        return [t for t in self.terms if isinstance(t, Expression) and t.uses_time]
+
+    @property
+    def driven(self) -> bool:
+        """Whether V changes in time (a term with a drive, or a formula in t)."""
+        return bool(self.drives() or self.time_formulas())
+
+    def drive_profiles(self, x: np.ndarray, dx: float) -> list[tuple[Drive, np.ndarray]]:
+        """(drive, S) per driven term: S the share of each grid cell
+        [x − dx/2, x + dx/2] inside the drive's interval (exact cell averages,
+        as for jumps, so a drive's edges keep their true positions)."""
+        x = np.asarray(x, dtype=float)
+        out = []
+        for drive, (a, b) in self.drives():
+            overlap = np.minimum(x + dx / 2, b) - np.maximum(x - dx / 2, a)
+            out.append((drive, np.clip(overlap / dx, 0.0, 1.0)))
+        return out

@@ -158,7 +158,9 @@ def _read_rows(name: str, text: str) -> list:
 
 
 class Expression(Term):
-    """V from a formula in x (numpy functions; checked, never eval'ed)."""
+    """V from a formula in x (numpy functions; checked, never eval'ed). A
+    formula in t too is a driven potential: `point` and the theory see its
+    value at t = 0, the engine `at_time(x, t)` at every kick."""
 
     kind: ClassVar[str] = "expression"
     formula: str
@@ -175,6 +177,14 @@ class Expression(Term):
 
     def point(self, x, mass=1.0):
         return _expr.evaluate(self._tree, x)
+
+    @property
+    def uses_time(self) -> bool:
+        return _expr.uses_time(self._tree)
+
+    def at_time(self, x, t: float) -> np.ndarray:
+        """Values at points x and time t."""
+        return _expr.evaluate(self._tree, x, t)
 
     def support(self):
         return None  # needs a span: see shape_on

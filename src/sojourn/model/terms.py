@@ -24,6 +24,34 @@ class Shape(NamedTuple):
 TAIL = 1e-12  # a smooth tail counts as zero below this fraction of the term's height
 
 
+class Drive(BaseModel):
+    """An oscillation V₁·cos(ωt + φ) added uniformly over a term's drive support,
+    optionally switched on smoothly over `ramp` (envelope sin²(πt/2τ) for t < τ)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
+    amplitude: float
+    angular_frequency: float = Field(gt=0)
+    phase: float = 0.0
+    ramp: Optional[float] = Field(default=None, gt=0)
+
+    def envelope(self, t: float) -> float:
+        """The switch-on factor at time t (1 without a ramp, and after it)."""
+        if self.ramp is None or t >= self.ramp:
+            return 1.0
+        if t <= 0:
+            return 0.0
+        return math.sin(0.5 * math.pi * t / self.ramp) ** 2
+
+    def value(self, t: float) -> float:
+        """V₁·envelope(t)·cos(ωt + φ): what the drive adds at time t."""
+        return self.amplitude * self.envelope(t) * math.cos(self.angular_frequency * t
+                                                            + self.phase)
+
+    @property
+    def period(self) -> float:
+        return 2 * math.pi / self.angular_frequency
+
+
 class Term(BaseModel):
     """Base of all potential terms. A term must provide:
 
@@ -44,6 +72,9 @@ class Term(BaseModel):
        span; the default asks the methods above; terms known only by their
        values (`sampled.Table`, `sampled.Expression`) read them off their data
        or off a sampling no coarser than `spacing`.
+    7. Every term accepts an optional ``drive`` (`Drive`): V₁·cos(ωt + φ) over
+       ``drive_support()`` (default: its support, the whole line if unbounded;
+       a step drives its high side, a barrier or well its interval).
     Nothing else changes when a term is added: the scenario schema, the error
     messages, build and the theory read all of this through `Potential`.
     """
@@ -52,9 +83,15 @@ class Term(BaseModel):
     kind: ClassVar[str] = ""
     piecewise_constant: ClassVar[bool] = False
     confining: ClassVar[bool] = False
+    drive: Optional[Drive] = None
 
     def point(self, x, mass: float = 1.0) -> np.ndarray:
         raise NotImplementedError
+
+    def drive_support(self) -> tuple[float, float]:
+        """Where the drive acts: the support, or the whole line if unbounded."""
+        support = self.support()
+        return support if support is not None else (-math.inf, math.inf)
 
     def cell(self, x, dx: float, mass: float = 1.0) -> np.ndarray:
         """Values on a grid of spacing dx (default: point values)."""
@@ -87,7 +124,8 @@ class Term(BaseModel):
         return Shape(self.levels(mass), self.support(), self.breakpoints(), self.jumps())
 
     def describe(self) -> str:
-        fields = ", ".join(f"{k}={v}" for k, v in self.model_dump().items())
+        fields = ", ".join(f"{k}={v}" for k, v in self.model_dump().items()
+                           if not (k == "drive" and v is None))
         return f"{self.kind}({fields})"
 
 
@@ -123,6 +161,9 @@ class Step(_Antiderivative):
     def support(self):
         return self.at, self.at
 
+    def drive_support(self):
+        return self.at, math.inf
+
     def breakpoints(self):
         return [self.at]
 
@@ -143,6 +184,9 @@ class _Interval(_Antiderivative):
         return end
 
     def support(self):
+        return self.start, self.end
+
+    def drive_support(self):
         return self.start, self.end
 
     def breakpoints(self):

@@ -23,6 +23,7 @@ from ..store import RunFile
 from .facts import RunFacts, channels, open_run, run_facts, window
 from .options import FIGURE_FORMATS, PRINT_DPI, check_output, figure_size, unit_label
 from .delays import delay_panels
+from .sidebands import outgoing_spectra, sideband_panels
 from .overlays import (action_window, direction, incident_bounds, reference_trajectory,
                        side_centroid, turning_time)
 from .channels import transmission_ruler, transmitted_reference, untrusted_channels
@@ -160,10 +161,14 @@ def figure(path, options: FigureOptions = FigureOptions()):
             facts.x, np.maximum(scan.peak, scan.reference_peak),
             facts.V if facts.scattering else None, facts.inner, facts.packet.width))
         st = space_time(reader, facts, span)
-    ruler = reflection_ruler(scan, facts) if facts.scattering else None
-    ruler_t = transmission_ruler(scan, facts) if facts.scattering else None
+        driven = facts.potential is not None and facts.potential.driven \
+            and facts.potential.drives() and facts.scattering
+        spectra = outgoing_spectra(facts, run.psi(len(run) - 1)) if driven else None
+    # a driven run has no phase delay to rule: its sidebands take the side panel
+    ruler = reflection_ruler(scan, facts) if facts.scattering and not driven else None
+    ruler_t = transmission_ruler(scan, facts) if facts.scattering and not driven else None
     doubt = untrusted_channels(facts.analysis)
-    analysed = bool(channels(facts.analysis))
+    analysed = bool(channels(facts.analysis)) or bool(driven)
     clocks = facts.clock is not None and facts.scattering   # a spinor run: the clocks panel
     ratios = [1.5] + [0.75] * (bool(ruler) + bool(ruler_t)) + ([1.25] if analysed else []) \
         + ([1.25] if clocks else [])
@@ -259,7 +264,10 @@ def figure(path, options: FigureOptions = FigureOptions()):
         cell = cells[column].subgridspec(2, 1, height_ratios=[2.2, 1])
         upper = fig.add_subplot(cell[0])
         lower = fig.add_subplot(cell[1], sharex=upper)
-        delay_panels(upper, lower, facts, look, font, lw)
+        if driven:
+            sideband_panels(upper, lower, facts, spectra, look, font, lw, u)
+        else:
+            delay_panels(upper, lower, facts, look, font, lw)
         axes += [upper, lower]
         column += 1
     if clocks:

@@ -1,7 +1,7 @@
 """The states a movie shows: one per stored snapshot, or, for a movie of a
 given length, one per frame — taken from the snapshots where they fall on one
 and otherwise propagated from the snapshot before with the run's own
-Hamiltonian (its V, absorber W, Δt and scheme), which reproduces the run's
+Hamiltonian (its V, V(x, t) if driven, absorber W, Δt and scheme), which reproduces the run's
 state at those steps exactly (to rounding), instead of repeating frames.
 """
 from __future__ import annotations
@@ -11,7 +11,7 @@ from typing import Iterator
 
 import numpy as np
 
-from ..engine.propagate import Propagator
+from ..engine.propagate import Propagator, TimeDependence
 from ..errors import RenderError
 from ..model.grid import Grid
 from ..store import RunFile
@@ -52,16 +52,20 @@ def propagated_states(run: RunFile, facts: RunFacts, wanted: np.ndarray
         raise RenderError(f"{run.path}: the run file records no time step; it cannot be "
                           "propagated between snapshots")
     times = facts.times
+    grid = grid_of(facts.x)
     V = facts.V if facts.components is None else facts.components   # a spinor: one per component
-    prop = Propagator(grid_of(facts.x), V, facts.hbar, facts.mass, facts.dt, facts.scheme,
-                      facts.absorber, single=facts.single)
+    driven = facts.potential is not None and facts.potential.driven
+    drive = TimeDependence.of_potential(facts.potential, grid.x, grid.dx) if driven else None
+    prop = Propagator(grid, V, facts.hbar, facts.mass, facts.dt, facts.scheme,
+                      facts.absorber, single=facts.single, drive=drive)
     wanted = np.asarray(wanted, float)
     nearest = np.searchsorted(times, wanted + 1e-9 * max(facts.dt, 1e-300), side="right") - 1
     nearest = np.clip(nearest, 0, len(times) - 1)
     current, at_step = -1, 0
     for t, i in zip(wanted, nearest):
         if i != current:
-            prop.set_state(run.psi(int(i)))
+            # the snapshot's own step: a driven potential's kicks read the time from it
+            prop.set_state(run.psi(int(i)), int(round(times[i] / facts.dt)))
             current, at_step = int(i), 0
         target = int(round((t - times[i]) / facts.dt))
         if target > at_step:

@@ -25,6 +25,7 @@ from matplotlib.patches import Polygon
 
 from ..errors import RenderError
 from ..store import RunFile
+from ..engine.propagate import TimeDependence
 from .facts import RunFacts, open_run, run_facts, time_format, window
 from .frames import frame_times, propagated_states
 from .options import DEFAULT_CURVES, MOVIE_FORMATS, check_output, parse_curves, unit_label
@@ -107,7 +108,8 @@ class MovieFrame:
         self.xs = x[self.index]
         u = {k: unit_label(v) for k, v in facts.units.items() if isinstance(v, str)}
         self.time_unit = u["time"]
-        scatters = facts.scattering and options.ruler
+        driven = facts.potential is not None and facts.potential.driven
+        scatters = facts.scattering and options.ruler and not driven   # no phase delay to rule
         self.ruler = reflection_ruler(scan, facts) if scatters else None
         self.ruler_t = transmission_ruler(scan, facts) if scatters else None
         self.untrusted = untrusted_channels(facts.analysis)
@@ -138,10 +140,16 @@ class MovieFrame:
             raise RenderError(f"--density-power {self.power:g}: choose 0.05 to 1 (1: the true "
                               "density)")
         e_lo = e_hi = 0.0
+        self.drive = None
         if "potential" in curves:
             V = facts.V[keep]
             e0 = facts.packet.energy
             e_lo, e_hi = min(float(V.min()), e0, 0.0), max(float(V.max()), e0, 0.0)
+            if facts.potential is not None and facts.potential.driven:   # V moves: V(x, t)
+                self.drive = TimeDependence.of_potential(facts.potential, x, float(x[1] - x[0]))
+                self.keep, self.V_static = keep, V
+                swing = sum(abs(d.amplitude) for d, _ in facts.potential.drives())
+                e_lo, e_hi = min(e_lo, float(V.min()) - swing), max(e_hi, float(V.max()) + swing)
             span = (e_hi - e_lo) or abs(e0) or 1.0
             e_hi += 0.25 * span
         # the potential's zero on the density's zero
@@ -161,7 +169,11 @@ class MovieFrame:
             ax2.set_ylim(-zero * e_hi / (1 - zero), e_hi)
             ax2.set_ylabel(f"energy ({u['energy']})")
             ax2.fill_between(x[keep], 0, V, color=look.potential, alpha=0.22, linewidth=0)
-            ax2.plot(x[keep], V, color=look.potential, linewidth=lw, label="V(x)")
+            if self.drive is None:
+                ax2.plot(x[keep], V, color=look.potential, linewidth=lw, label="V(x)")
+            else:      # the static part filled, V(x, t) a line drawn with each frame
+                self.potential_line, = ax2.plot(x[keep], V, color=look.potential,
+                                                linewidth=lw, label="V(x, t)", animated=True)
             ax2.axhline(e0, color=look.energy, linewidth=0.7 * lw, linestyle=(0, (4, 2)))
             ax2.text(lo + 0.01 * (hi - lo), e0, f" E₀ = {e0:.4g} {u['energy']}",
                      color=look.energy, fontsize=0.8 * font, va="bottom")
@@ -245,6 +257,8 @@ class MovieFrame:
                                  fontsize=0.9 * font, va="top", ha="left", animated=True,
                                  family="DejaVu Sans Mono")
         self.moving.append(self.time_text)
+        if self.drive is not None:
+            self.moving.insert(0, self.potential_line)
         self.time_format = time_format(facts.times)
         fig.suptitle(facts.title, color=look.text, fontsize=1.1 * font, family=look.family)
         self.panels = []
@@ -311,6 +325,9 @@ class MovieFrame:
             self.real_line.set_ydata(psi.real * self.amplitude)
         if "imag" in self.curves:
             self.imag_line.set_ydata(psi.imag * self.amplitude)
+        if self.drive is not None:
+            added = self.drive(t, f.x.shape)[self.keep]
+            self.potential_line.set_ydata(self.V_static + added)
         self.time_text.set_text(f"t = {self.time_format.format(t)} {self.time_unit}")
         self.canvas.restore_region(self.background)
         for artist in self.moving:

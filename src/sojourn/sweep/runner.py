@@ -103,6 +103,24 @@ def _report_values(report, path: Path, scenario) -> dict:
             out[f"{channel}_error_{method}"] = None if r is None else r.error
         out[f"{channel}_delay_wigner"] = ch.wigner
         out[f"{channel}_delay_packet"] = ch.packet
+        out.update(_sideband_values(channel, ch.sidebands))
+    return out
+
+
+def _sideband_values(channel: str, rows) -> dict:
+    """A driven run's sideband probabilities (measured and predicted) and the
+    asymmetry P(+1)/P(−1) of each (the Büttiker–Landauer crossover)."""
+    if not rows:
+        return {}
+    out = {}
+    by_order = {r["order"]: r for r in rows}
+    for r in rows:
+        out[f"{channel}_sideband_{r['order']:+d}"] = r["probability"]
+        out[f"{channel}_sideband_{r['order']:+d}_predicted"] = r["predicted"]
+    if 1 in by_order and -1 in by_order:
+        for kind, key in (("", "probability"), ("_predicted", "predicted")):
+            up, down = by_order[1][key], by_order[-1][key]
+            out[f"{channel}_asymmetry{kind}"] = up / down if up is not None and down else None
     return out
 
 

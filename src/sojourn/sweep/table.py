@@ -76,6 +76,10 @@ def table_columns(sweep: Sweep, rows: list, verify: bool) -> list:
         columns += [f"{channel}_delay_wigner", f"{channel}_delay_packet"]
         if verify:
             columns += [f"{channel}_error_{m}" for m in METHODS]
+    for channel in CHANNELS:     # a driven scenario's sidebands (sweep.runner._sideband_values)
+        extra = sorted({k for r in rows for k in r if k.startswith((f"{channel}_sideband",
+                                                                     f"{channel}_asymmetry"))})
+        columns += [c for c in extra if c not in columns]
     return columns + ["status", "error", "warnings"]
 
 

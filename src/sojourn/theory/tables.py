@@ -13,6 +13,8 @@ from ..model.grid import Grid
 from ..model.packets import PacketInfo, describe
 from ..model.potentials import Potential
 from .averages import packet_prediction
+from .floquet import buttiker_landauer_time, driven_layers, sideband_asymmetry
+from .floquet_averages import packet_sidebands
 from .larmor import larmor_times, packet_larmor
 from .layers import check_scattering
 from .scattering import scatter
@@ -125,6 +127,8 @@ def theory_table(scenario, energies=None, *, packet: bool = True) -> dict:
     }
     if getattr(scenario, "larmor", None) is not None:
         table.update(_larmor_columns(scenario, inputs, sc.energy, direction, packet))
+    if pot.drives():
+        table["drive"] = _drive_columns(inputs, packet)
     if packet:
         pred = packet_prediction(pot, info, hbar=inputs.hbar, mass=inputs.mass,
                                  reference=inputs.reference, region=inputs.region)
@@ -141,6 +145,36 @@ COLUMNS = ("energy", "R", "T", "phase_reflection", "phase_transmission",
            "delay_reflection", "delay_transmission", "dwell")
 LARMOR_COLUMNS = ("tau_y_reflection", "tau_z_reflection", "tau_y_transmission",
                   "tau_z_transmission")
+
+
+ASYMMETRY_SPAN = np.geomspace(0.25, 4.0, 9)     # ω / the scenario's ω for the asymmetry curve
+
+
+def _drive_columns(inputs: TheoryInputs, packet: bool) -> dict:
+    """A driven scenario: τ_BL at E₀, the asymmetry curve T(+1)/T(−1) against ω
+    at E₀, and the packet-averaged sidebands (the arrays of the table are the
+    undriven potential's)."""
+    pot, info, hbar, mass = inputs.potential, inputs.packet, inputs.hbar, inputs.mass
+    out = {"note": "R, T and the delays above are the undriven potential's; a driven one "
+                   "scatters into sidebands E0 + n*hbar*omega and has no phase delays"}
+    try:
+        layers = driven_layers(pot, hbar)
+        seen = layers.mirrored() if info.k0 < 0 else layers
+        omegas = layers.omega * ASYMMETRY_SPAN
+        tau = buttiker_landauer_time(pot, info.energy, hbar=hbar)
+        out.update(omega=layers.omega, tau_bl=tau, asymmetry={
+            "omega": _clean(omegas), "omega_tau_bl": _clean(omegas * tau),
+            "T_plus_over_T_minus": _clean(sideband_asymmetry(seen, info.energy, omegas,
+                                                             hbar=hbar, mass=mass))})
+        if packet:
+            ps = packet_sidebands(pot, info, hbar=hbar, mass=mass)
+            out["packet_sidebands"] = {
+                "order": list(ps.orders), "energy": _clean([ps.energy[n] for n in ps.orders]),
+                **{f"{kind}_{ch}": _clean([getattr(ps, kind)[ch][n] for n in ps.orders])
+                   for kind in ("stationary", "windowed") for ch in ("reflection", "transmission")}}
+    except TheoryError as exc:
+        out["error"] = str(exc)
+    return out
 
 
 def _larmor_columns(scenario, inputs: TheoryInputs, E, direction: str, packet: bool) -> dict:
@@ -237,6 +271,23 @@ def format_table(table: dict) -> str:
                 text.append(f"  {name:12s} tau_y = {ch['tau_y']:.8g}  tau_z = {ch['tau_z']:.8g}  "
                             f"tau = {ch['tau']:.8g} {u['time']}  (at omega_L: tau_y = "
                             f"{ch['tau_y_exact']:.8g}, tau_z = {ch['tau_z_exact']:.8g})")
+    drive = table.get("drive")
+    if drive:
+        text.append(f"driven: {drive['note']}")
+        if "error" in drive:
+            text.append(f"  no Floquet prediction: {drive['error']}")
+        else:
+            text.append(f"  omega = {drive['omega']:g} per {u['time']}; Buttiker-Landauer time "
+                        f"at E0 = {drive['tau_bl']:.6g} {u['time']}")
+            a = drive["asymmetry"]
+            text.append("  T(+1)/T(-1) at E0: " + ", ".join(
+                f"{fmt(r)} (omega*tau = {w:.3g})" for r, w in zip(a["T_plus_over_T_minus"],
+                                                                  a["omega_tau_bl"])))
+            ps = drive.get("packet_sidebands")
+            if ps:
+                for ch in ("reflection", "transmission"):
+                    text.append(f"  packet {ch:12s} " + "  ".join(
+                        f"{n:+d}: {fmt(v)}" for n, v in zip(ps["order"], ps[f"stationary_{ch}"])))
     return "\n".join(text) + "\n"
 
 
