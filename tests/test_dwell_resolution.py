@@ -47,3 +47,18 @@ def test_measured_dwell_is_within_what_the_grid_allows(points):
     assert abs(dwell["relative"]) >= allowed / 10
     findings = [f for f in setup.findings if "evanescent" in f.message]
     assert findings and f"{allowed:.1%}" in findings[0].message
+
+
+def test_a_coarse_tail_warns_only_where_the_dwell_time_is_asked_for():
+    # 256 points over 400: κΔx = 1.6, an allowance far past a few per cent
+    asked = build(loads(_barrier(256), source="barrier.yaml"))
+    default = build(loads(small_step({"grid": {"span": [-200.0, 200.0], "points": 256},
+                                      "potential": [{"barrier": {"start": 0.0, "end": 2.0,
+                                                                 "height": 1.0}}],
+                                      "packet": {"center": -80.0, "width": 10.0,
+                                                 "energy": 0.5},
+                                      "evolve": {"duration": 150.0, "dt": 0.05},
+                                      "absorber": {"width": 40.0}}), source="b.yaml"))
+    levels = {name: [f.level for f in s.findings if "evanescent" in f.message]
+              for name, s in (("asked", asked), ("default", default))}
+    assert levels == {"asked": ["warning"], "default": ["info"]}

@@ -402,7 +402,9 @@ def _dwell_resolution(s, add) -> None:
     text = (f"the grid resolves the evanescent tail under the potential coarsely: the dwell "
             f"time may be off by about {error:.1%} (≈ {DWELL_GRID_ERROR:g}(κΔx)² per edge of the "
             f"forbidden zone); points ≥ {points} bring it near {RENDERING_WARN:g}")
-    add(Finding("warning" if error > DWELL_WARN else "info", "grid.points", text))
+    # a warning only where the scenario asks for the dwell time (its own measure.region)
+    asked = s.scenario.measure.region is not None
+    add(Finding("warning" if error > DWELL_WARN and asked else "info", "grid.points", text))
 
 
 def _potential_features(s, add) -> None:
