@@ -29,33 +29,87 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
 
 
+def _pair_kind(value) -> str:
+    """'Plane' for a pair of pairs (or of numbers per axis), 'Line' otherwise: the
+    tag a one- or two-dimensional value is validated under (dropped from messages)."""
+    if isinstance(value, (list, tuple)) and value and isinstance(value[0], (list, tuple)):
+        return "Plane"
+    return "Line"
+
+
+def _per_axis_kind(value) -> str:
+    return "Plane" if isinstance(value, (list, tuple)) else "Line"
+
+
+Range = tuple[float, float]
+Count = Annotated[int, Field(ge=16, description="number of grid points")]
+
+
 class GridSpec(_Strict):
-    span: tuple[float, float]
-    points: int = Field(ge=16, description="number of grid points")
+    """One axis: span [left, right], points N. Two (the plane): span
+    [[x0, x1], [y0, y1]], points [Nx, Ny]."""
+
+    span: Annotated[Union[Annotated[Range, Tag("Line")],
+                          Annotated[tuple[Range, Range], Tag("Plane")]], Discriminator(_pair_kind)]
+    points: Annotated[Union[Annotated[Count, Tag("Line")],
+                            Annotated[tuple[Count, Count], Tag("Plane")]],
+                      Discriminator(_per_axis_kind)]
 
     @field_validator("span")
     @classmethod
     def _ordered(cls, span):
-        if not all(math.isfinite(v) for v in span):
-            raise ValueError("must be two finite numbers [left, right]")
-        if span[1] <= span[0]:
-            raise ValueError(f"right end must exceed left end (got [{span[0]}, {span[1]}])")
-        if not math.isfinite(span[1] - span[0]):
-            raise ValueError(f"the box [{span[0]:g}, {span[1]:g}] is too long for a float")
+        for pair in (span if isinstance(span[0], tuple) else (span,)):
+            if not all(math.isfinite(v) for v in pair):
+                raise ValueError("must be two finite numbers [left, right]")
+            if pair[1] <= pair[0]:
+                raise ValueError(f"right end must exceed left end (got [{pair[0]}, {pair[1]}])")
+            if not math.isfinite(pair[1] - pair[0]):
+                raise ValueError(f"the box [{pair[0]:g}, {pair[1]:g}] is too long for a float")
         return span
 
     @property
+    def dimensions(self) -> int:
+        return 2 if isinstance(self.span[0], tuple) else 1
+
+    @property
+    def x_span(self) -> Range:
+        return self.span[0] if self.dimensions == 2 else self.span
+
+    @property
+    def x_points(self) -> int:
+        return self.points[0] if self.dimensions == 2 else self.points
+
+    @property
+    def total_points(self) -> int:
+        return self.points[0] * self.points[1] if self.dimensions == 2 else self.points
+
+    @property
     def dx(self) -> float:
-        return (self.span[1] - self.span[0]) / self.points
+        return (self.x_span[1] - self.x_span[0]) / self.x_points
+
+
+Width = Annotated[float, Field(gt=0, description="rms width of |psi|^2")]
+
+
+def _direction_kind(value) -> str:
+    return "Word" if isinstance(value, str) else "Angle"
 
 
 class PacketSpec(_Strict):
+    """One axis: center x₀, width σ, direction right/left. The plane: center
+    [x₀, y₀], width σ or [σx, σy], direction in degrees from +x."""
+
     shape: Literal["gaussian"] = "gaussian"
-    center: float
-    width: float = Field(gt=0, description="rms width of |psi|^2")
+    center: Annotated[Union[Annotated[float, Tag("Line")], Annotated[Range, Tag("Plane")]],
+                      Discriminator(_per_axis_kind)]
+    width: Annotated[Union[Annotated[Width, Tag("Line")],
+                           Annotated[tuple[Width, Width], Tag("Plane")]],
+                     Discriminator(_per_axis_kind)]
     energy: Optional[float] = Field(default=None, gt=0)
     wavenumber: Optional[float] = None
-    direction: Literal["right", "left"] = "right"
+    direction: Annotated[Union[Annotated[Literal["right", "left"], Tag("Word")],
+                               Annotated[float, Tag("Angle")]],
+                         Discriminator(_direction_kind)] = "right"
 
     @model_validator(mode="after")
     def _one_of(self):
@@ -185,8 +239,15 @@ class Scenario(_Strict):
         return [getattr(item, next(iter(type(item).model_fields))) for item in self.potential]
 
     def build_potential(self) -> pot.Potential:
-        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.span,
+        """The potential along x (in the plane: the terms that depend on x alone;
+        a shape or a formula in y makes it `Potential.along_x` False)."""
+        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.x_span,
                              spacing=self.grid.dx / 4)
+
+    @property
+    def dimensions(self) -> int:
+        """1 on a line, 2 in the plane (the shape of `grid` decides)."""
+        return self.grid.dimensions
 
     def line_of(self, dotted: str) -> Optional[int]:
         """The line of a dotted key (e.g. 'packet.width') in the scenario's text, if known."""
@@ -339,7 +400,37 @@ def validate(data: Any, source: str = "<scenario>", lines: Optional[dict] = None
                             f"{_describe(error, loc)}") from None
     except (ValueError, TypeError, OSError) as exc:   # raised while reading a table file
         raise ScenarioError(f"{source}:1: {exc}") from None
+    problem = dimension_problem(scenario)
+    if problem is not None:
+        loc, message = problem
+        raise ScenarioError(f"{source}:{_line_for(loc, lines)}: {format_path(loc)}: {message}")
     return scenario
+
+
+def dimension_problem(scenario: Scenario) -> Optional[tuple[tuple, str]]:
+    """(key path, message) for the first key that does not fit the grid's
+    dimensions (a line or the plane), or None when all do."""
+    plane = scenario.dimensions == 2
+    packet = scenario.packet
+    if plane != isinstance(packet.center, tuple):
+        return ("packet", "center"), (
+            "must be [x, y] on a grid in the plane" if plane else
+            "must be one number on a grid along one axis (a pair needs grid.span [[x0, x1], "
+            "[y0, y1]])")
+    if not plane and isinstance(packet.width, tuple):
+        return ("packet", "width"), "[σx, σy] needs a grid in the plane; give one width"
+    if not plane and not isinstance(packet.direction, str):
+        return ("packet", "direction"), ("an angle needs a grid in the plane; on a line it is "
+                                         "'right' or 'left'")
+    for index, (item, term) in enumerate(zip(scenario.potential, scenario.terms)):
+        if getattr(term, "planar", False) and not plane:
+            kind = next(iter(type(item).model_fields))
+            what = "a formula in y" if kind == "expression" else f"'{kind}' is a shape of the plane"
+            return ("potential", index, kind), (f"{what}: it needs grid.span [[x0, x1], "
+                                                "[y0, y1]] and points [Nx, Ny]")
+    if plane and scenario.larmor is not None:
+        return ("larmor",), "a Larmor clock runs on a line only (one grid axis)"
+    return None
 
 
 def loads(text: str, source: str = "<scenario>", base_dir: Optional[Path] = None) -> Scenario:

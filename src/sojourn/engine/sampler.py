@@ -24,7 +24,7 @@ class Sampler:
                  closing: Optional[np.ndarray] = None):
         g = setup.grid
         self.dt, self.every = setup.dt, setup.sample_steps
-        self.dx = g.dx
+        self.dx = g.cell   # the cell volume: dx on a line, dx·dy in the plane
         self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
         self._buffer_detectors = self.detectors if closing is None \
             else self.detectors.with_factor(closing)
@@ -34,12 +34,12 @@ class Sampler:
         self.layers = []
         if setup.W is not None:
             half = g.points // 2
-            for sl in (slice(0, half), slice(half, g.points)):
-                w = setup.W[sl]
-                nz = np.nonzero(w)[0]
+            for sl in (slice(0, half), slice(half, g.points)):   # the halves along x
+                w = setup.W[..., sl]
+                nz = np.nonzero(np.any(w != 0, axis=tuple(range(w.ndim - 1))))[0]
                 if nz.size:
                     sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
-                self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
+                self.layers.append((sl, np.sqrt(2 * setup.W[..., sl] / setup.hbar)))
         self.raw_absorbed = list(raw_absorbed)
         self._spectrum = FFTPair(g.shape)  # a planned transform for ⟨p⟩ and ⟨H⟩
         self.reset()
@@ -62,7 +62,7 @@ class Sampler:
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
         for side, (sl, root_rate) in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled
-            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[sl]) * self.dx * self.dt \
+            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[..., sl]) * self.dx * self.dt \
                 * self.every
         for side, value in enumerate(self.split_absorbed(total)):
             self.absorbed[side].append(value)

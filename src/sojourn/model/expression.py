@@ -1,4 +1,4 @@
-"""Safe arithmetic formulas in x for potential terms.
+"""Safe arithmetic formulas in x (and y, in the plane) for potential terms.
 
 A formula is parsed with `ast` and checked against a whitelist of names,
 functions and operators; it is then evaluated by walking the checked tree with
@@ -37,6 +37,7 @@ ARITY = {name: (1, 1) for name in FUNCTIONS}
 ARITY.update({"heaviside": (1, 2), "where": (3, 3), "minimum": (2, 2), "maximum": (2, 2),
               "clip": (3, 3)})
 CONSTANTS = {"pi": np.pi, "e": np.e}
+VARIABLES = ("x", "y")   # the coordinates a formula may use (y only in the plane)
 BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
           ast.Div: operator.truediv, ast.Pow: operator.pow}
 UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
@@ -65,9 +66,10 @@ def _check(node: ast.AST, depth: int = 0) -> None:
             raise ExpressionError(f"the number {_short(node.value)} is too large for a float")
         return
     if isinstance(node, ast.Name):
-        if node.id != "x" and node.id not in CONSTANTS:
+        if node.id not in VARIABLES and node.id not in CONSTANTS:
             raise ExpressionError(
-                f"unknown name '{node.id}' (allowed: x, {', '.join(CONSTANTS)}, "
+                f"unknown name '{node.id}' (allowed: {', '.join(VARIABLES)}, "
+                f"{', '.join(CONSTANTS)}, "
                 f"and the functions {', '.join(sorted(FUNCTIONS))})")
         return
     if isinstance(node, ast.BinOp) and type(node.op) in BINARY:
@@ -138,45 +140,60 @@ def _fold(node: ast.AST):
         [node.left, node.comparators[0]] if isinstance(node, ast.Compare) else \
         list(node.args) if isinstance(node, ast.Call) else []
     values = [_fold(child) for child in children]
-    if isinstance(node, ast.Name) and node.id == "x" or any(v is None for v in values):
+    if isinstance(node, ast.Name) and node.id in VARIABLES or any(v is None for v in values):
         return None
     with np.errstate(all="ignore"):
-        value = np.asarray(_eval(node, np.zeros(1)), dtype=float)
+        value = np.asarray(_eval(node, {"x": np.zeros(1)}), dtype=float)
     if not np.all(np.isfinite(value)):
         raise ExpressionError(f"the part {_short(ast.unparse(node))!r} is not a finite number "
                               f"({float(value.flat[0]):g})")
     return value
 
 
-def _eval(node: ast.AST, x: np.ndarray):
+def _eval(node: ast.AST, env: dict):
     if isinstance(node, ast.Expression):
-        return _eval(node.body, x)
+        return _eval(node.body, env)
     if isinstance(node, ast.Constant):
         return np.float64(float(node.value))
     if isinstance(node, ast.Name):
-        return x if node.id == "x" else np.float64(CONSTANTS[node.id])
+        return env[node.id] if node.id in VARIABLES else np.float64(CONSTANTS[node.id])
     if isinstance(node, ast.BinOp):
-        return BINARY[type(node.op)](_eval(node.left, x), _eval(node.right, x))
+        return BINARY[type(node.op)](_eval(node.left, env), _eval(node.right, env))
     if isinstance(node, ast.UnaryOp):
-        return UNARY[type(node.op)](_eval(node.operand, x))
+        return UNARY[type(node.op)](_eval(node.operand, env))
     if isinstance(node, ast.Compare):
-        return COMPARE[type(node.ops[0])](_eval(node.left, x), _eval(node.comparators[0], x))
+        return COMPARE[type(node.ops[0])](_eval(node.left, env),
+                                          _eval(node.comparators[0], env))
     if isinstance(node, ast.Call):
-        return FUNCTIONS[node.func.id](*[_eval(a, x) for a in node.args])
+        return FUNCTIONS[node.func.id](*[_eval(a, env) for a in node.args])
     raise ExpressionError(f"'{type(node).__name__}' is not allowed")  # unreachable after _check
 
 
-def evaluate(tree: ast.Expression, x: np.ndarray) -> np.ndarray:
-    """Values of a checked formula at the points x (float array of x's shape).
+def variables(tree: ast.Expression) -> set:
+    """The coordinates (of VARIABLES) a checked formula uses."""
+    return {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and n.id in VARIABLES}
+
+
+def evaluate(tree: ast.Expression, x: np.ndarray, y=None) -> np.ndarray:
+    """Values of a checked formula at the points x (and y, broadcast with x, for
+    a formula in the plane): a float array of the broadcast shape.
 
     Work and memory are bounded by the checks: at most MAX_NODES operations on
     arrays of x's size, and at most MAX_DEPTH of them alive at once. Values may
     be inf or nan (e.g. log(x) at x <= 0); the caller judges them."""
+    if y is None and "y" in variables(tree):
+        raise ExpressionError("the formula uses y, which only a grid in the plane has")
     x = np.array(x, dtype=float)   # a read-only copy: nothing can write into the caller's
+    env = {"x": x}
+    if y is not None:
+        y = np.array(y, dtype=float)
+        x, y = (np.ascontiguousarray(a) for a in np.broadcast_arrays(x, y))
+        env = {"x": x, "y": y}
+        y.flags.writeable = False
     x.flags.writeable = False
     with np.errstate(all="ignore"):
         try:
-            values = _eval(tree, x)
+            values = _eval(tree, env)
             values = np.broadcast_to(np.asarray(values, dtype=float), x.shape).copy()
         except (TypeError, ValueError, OverflowError, ZeroDivisionError) as exc:
             raise ExpressionError(f"cannot evaluate the formula ({_short(str(exc), 80)})") from None

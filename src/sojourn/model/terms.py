@@ -44,6 +44,10 @@ class Term(BaseModel):
        span; the default asks the methods above; terms known only by their
        values (`sampled.Table`, `sampled.Expression`) read them off their data
        or off a sampling no coarser than `spacing`.
+    7. In the plane, a term of x alone acts along x (broadcast over y). A
+       term of the plane sets ``planar`` True and provides ``plane(x, y, mass)``
+       (values at points of the plane, broadcast) and ``bounds()``; a scenario
+       on a line refuses it (`shapes`).
     Nothing else changes when a term is added: the scenario schema, the error
     messages, build and the theory read all of this through `Potential`.
     """
@@ -52,6 +56,7 @@ class Term(BaseModel):
     kind: ClassVar[str] = ""
     piecewise_constant: ClassVar[bool] = False
     confining: ClassVar[bool] = False
+    planar: ClassVar[bool] = False
 
     def point(self, x, mass: float = 1.0) -> np.ndarray:
         raise NotImplementedError

@@ -124,6 +124,12 @@ def state_datasets(axes: tuple[str, ...]) -> dict:
             **{f"checkpoint/{slot}/psi": ("c", symbols) for slot in SLOTS}}
 
 
+def grid_symbols(axes: tuple[str, ...]) -> tuple[str, ...]:
+    """The symbols of the grid's own axes among ψ's (a component axis is not one):
+    ("N",) on a line, ("y", "N") in the plane."""
+    return ("y", "N") if "y" in axes else ("N",)
+
+
 def psi_dtype(setup) -> str:
     return "c8" if setup.scenario.evolve.precision == "single" else "c16"
 
@@ -334,7 +340,7 @@ def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
     sizes: dict = {}
     axes = state_axes(f, path, version)
     wanted = {**_datasets(version), **state_datasets(axes),
-              **{k: v for k, v in OPTIONAL.items() if k in f}}
+              **{k: (v[0], grid_symbols(axes)) for k, v in OPTIONAL.items() if k in f}}
     if version < 2:   # version 1 grew ψ's rows as it went and had one checkpoint state
         wanted = {k: v for k, v in wanted.items() if not k.startswith("checkpoint/")}
         wanted["snapshots/psi"] = ("c", ("P", "N"))
