@@ -15,6 +15,7 @@ from ..store import RunFile
 from . import health
 from .frame import ForwardRun, predictions, snapshot_stats
 from .methods import METHODS, channel_context
+from .plane import measure_plane
 from .report import ChannelReport, DelayReport
 
 READER = ("x", "V", "absorber", "times", "psi", "snapshots", "observables", "samples", "packet",
@@ -36,6 +37,11 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
     opened = []
     try:
         rf = _open(runfile_or_path, opened)
+        if "y" in rf.axes:   # a run in the plane: along the normal, and the lateral shift
+            if reference_run is not None:
+                raise MeasureError("a reference run is not used for a run in the plane (its "
+                                   "reference is the exact free evolution)")
+            return measure_plane(rf, measure_run)
         potential = rf.scenario().build_potential()
         run = ForwardRun.from_runfile(rf, potential)
         ref = None

@@ -101,10 +101,13 @@ class ChannelReport:
     detector: Optional[float] = None
     snapshots_used: int = 0
     spectrum: Optional[Spectrum] = None
+    lateral_shift: Optional[dict] = None   # in the plane: measured, predicted, deviation, error
 
     def to_dict(self, dwell: dict) -> dict:
         f = finite_or_none
-        return {
+        shift = {} if self.lateral_shift is None else {"lateral_shift": {
+            key: (f(v) if isinstance(v, float) else v) for key, v in self.lateral_shift.items()}}
+        return {**shift,
             "probability": f(self.probability),
             "measured": {m: r.to_dict() for m, r in self.measured.items()},
             "theory": {"wigner": f(self.wigner), "packet": f(self.packet),
@@ -129,6 +132,7 @@ class DelayReport:
     warnings: list = field(default_factory=list)
     energy0: Optional[float] = None
     notes: list = field(default_factory=list)     # facts that cast no doubt (a channel not measured)
+    plane: Optional[dict] = None   # a run in the plane: angle (degrees), k_x, k_y, energy_normal
 
     def channels(self) -> list:
         return [c for c in (self.reflection, self.transmission) if c is not None]
@@ -140,4 +144,6 @@ class DelayReport:
             "transmission": self.transmission.to_dict(self.dwell) if self.transmission else None,
             "warnings": list(self.warnings),
             "notes": list(self.notes),
+            **({} if self.plane is None else
+               {"plane": {key: finite_or_none(v) for key, v in self.plane.items()}}),
         }

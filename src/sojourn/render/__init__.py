@@ -10,10 +10,12 @@ from .options import (CURVES, DEFAULT_CURVES, figure_size, parse_curves, parse_s
 from .overlays import (centroid_delay, direction, phase_delay, energy_spectrum, mirror_reference,
                        reference_trajectory, side_centroid, turning_time)
 from .styles import LOOKS, STYLES, Look
+from .plane import PlaneOptions, is_plane_run, render_plane_figure, render_plane_movie
 
 __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "LOOKS", "Look", "MovieOptions",
            "FigureOptions", "RunFacts", "parse_size", "parse_xlim", "parse_curves",
            "figure_size", "direction", "mirror_reference", "reference_trajectory",
            "centroid_delay", "turning_time", "side_centroid", "energy_spectrum",
            "render_movie", "render_figure", "figure", "space_time", "outgoing_trajectory",
-           "phase_delay", "MovieFrame", "Scan", "scan_run", "Ruler", "reflection_ruler", "run_facts", "open_encoder"]
+           "phase_delay", "MovieFrame", "Scan", "scan_run", "Ruler", "reflection_ruler", "run_facts", "open_encoder",
+           "PlaneOptions", "is_plane_run", "render_plane_movie", "render_plane_figure"]

@@ -30,6 +30,8 @@ class MemoryRun(RunReader):
         self._x = np.array(setup.grid.x, dtype=float)
         self._V = np.array(setup.V, dtype=float)
         self._axes = tuple(name for name, _ in setup.state_axes)
+        self._coordinates = {name: np.array(values, dtype=float)
+                             for name, values in setup.state_axes}
         self._W = None if setup.W is None else np.array(setup.W, dtype=float)
         self._dtype = np.dtype(layout.psi_dtype(setup))
         self._region = tuple(map(float, setup.region)) if setup.region else None
@@ -100,6 +102,11 @@ class MemoryRun(RunReader):
     @property
     def axes(self) -> tuple[str, ...]:
         return self._axes
+
+    def coordinate(self, name: str) -> np.ndarray:
+        if name == "x" or name not in self._coordinates:
+            return super().coordinate(name)
+        return self._coordinates[name].copy()
 
     @property
     def absorber(self) -> Optional[np.ndarray]:
