@@ -45,18 +45,23 @@ class Snapshots:
                               ("c8" if single else "c16"))
 
     @property
-    def shape(self) -> tuple[int, int]:
-        return (len(self._reader), len(self._reader.x))
+    def shape(self) -> tuple[int, ...]:
+        """(S, N) on a line; (S, *axes) for ψ on more axes ((S, Ny, Nx) in the plane)."""
+        return (len(self._reader),) + tuple(len(self._reader.coordinate(a))
+                                            for a in self._reader.axes)
 
-    ndim = 2
+    @property
+    def ndim(self) -> int:
+        return 1 + len(self._reader.axes)
 
     def __len__(self) -> int:
         return len(self._reader)
 
     def __getitem__(self, key):
         rows, columns = (key[0], key[1:]) if isinstance(key, tuple) else (key, ())
-        if len(columns) > 1:
-            raise IndexError(f"snapshots are (t, x): {len(columns) + 1} indices given")
+        if len(columns) > len(self._reader.axes):
+            raise IndexError(f"snapshots are (t, {', '.join(self._reader.axes)}): "
+                             f"{len(columns) + 1} indices given")
         if isinstance(rows, (int, np.integer)):
             values = self._reader.psi(int(rows))
         else:
@@ -203,13 +208,16 @@ class _LazyRows(BackendArray):
 
 def _dataset(run: Run):
     label = labels(run.units)
-    t, x = run.t, run.x
-    coords = {"t": ("t", t, label["t"]), "x": ("x", x, label["x"])}
-    data = {name: (("t", "x"), indexing.LazilyIndexedArray(_LazyRows(view)), label[name])
+    axes = tuple(run.reader.axes)        # ("x",) on a line, ("y", "x") in the plane
+    coords = {"t": ("t", run.t, label["t"]),
+              **{name: (name, run.reader.coordinate(name), label.get(name, label["x"]))
+                 for name in axes if name in ("x", "y")}}
+    data = {name: (("t",) + axes, indexing.LazilyIndexedArray(_LazyRows(view)), label[name])
             for name, view in (("psi", run.psi), ("density", run.density))}
-    data["V"] = ("x", run.V, label["V"])
+    data["V"] = (axes, run.V, label["V"])
     if run.absorber is not None:
-        data["absorber"] = ("x", run.absorber, label["absorber"])
+        data["absorber"] = (axes[len(axes) - np.ndim(run.absorber):], run.absorber,
+                            label["absorber"])
     for name, values in run.observables.items():
         if name != "t":
             data[name] = ("t", values, label[name])

@@ -79,6 +79,19 @@ def format_delay_report(report, moves=None) -> list:
                          f"{num(r.deviation, 3):>12}{rel:>11}{err:>11}")
         lines.append(f"  phase delay at E₀ (Wigner) {num(ch.wigner)}; flux-weighted ⟨τ⟩_w "
                      f"{num(ch.packet)}")
+        shift = getattr(ch, "lateral_shift", None)
+        if shift:
+            rel = (shift["deviation"] / abs(shift["predicted"])
+                   if shift.get("deviation") is not None and shift.get("predicted") else None)
+            lines.append(f"  lateral shift D along the interface: measured {num(shift['measured'])}"
+                         f", packet-averaged {num(shift['predicted'])} (relative "
+                         f"{'—' if rel is None else f'{rel:.2e}'}); stationary phase at k₀ "
+                         f"{num(shift.get('stationary'))}")
+    if getattr(report, "plane", None):
+        p = report.plane
+        lines.insert(1, f"in the plane: incidence at {p['angle']:.4g}° from the normal x; the "
+                        f"delays are those of the motion along x (k_x = {p['k_x']:.6g}, "
+                        f"E_x = {p['energy_normal']:.6g})")
     d = report.dwell
     if d.get("measured") is not None:
         lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "

@@ -174,7 +174,8 @@ def measure_plane(rf, measure_run) -> DelayReport:
         report.reflection.lateral_shift = {
             "measured": measured, "predicted": predicted,
             "deviation": None if measured is None or predicted is None else measured - predicted,
-            "error": float(np.ptp(values) / 2) if values.size > 1 else None,
+            "error": None,   # a discretisation bar needs reruns (as on a line)
+            "spread": float(np.ptp(values) / 2) if values.size > 1 else None,
             "stationary": None if wigner is None else
             (transverse.k0 / normal.k0) * normal.group_velocity * wigner,
             "snapshots_used": int(values.size)}
