@@ -183,3 +183,20 @@ def test_plane_run_opens_in_xarray_with_t_y_x(tmp_path):
         assert ds["psi"].dims == ("t", "y", "x") and ds["V"].dims == ("y", "x")
         np.testing.assert_allclose(ds["density"].isel(t=0).values,
                                    np.abs(setup.psi0()) ** 2, rtol=1e-12)
+
+
+def test_single_precision_snapshots_keep_a_double_state(tmp_path):
+    """record.precision: single halves the snapshots (c8) while the run and its
+    checkpoints stay double; the snapshots equal the double run's to float32."""
+    from sojourn.store.reader import RunFile
+    from sojourn.workflows import run
+    double = run(build(loads(PLANE, source=str(tmp_path / "d.yaml"))), tmp_path / "d.h5")
+    text = PLANE.replace("record: {every: 1.0}", "record: {every: 1.0, precision: single}")
+    single = run(build(loads(text, source=str(tmp_path / "s.yaml"))), tmp_path / "s.h5")
+    with RunFile(double) as d, RunFile(single) as s:
+        assert s.h5["snapshots/psi"].dtype == np.complex64
+        assert s.h5["checkpoint/a/psi"].dtype == np.complex128
+        assert s.attrs["snapshot_precision"] == "single"
+        scale = np.max(np.abs(d.psi(-1)))
+        np.testing.assert_allclose(s.psi(-1), d.psi(-1), atol=1e-6 * scale)
+        np.testing.assert_array_equal(s.observables()["norm"], d.observables()["norm"])

@@ -40,7 +40,8 @@ class Snapshots:
 
     def __init__(self, reader: RunReader, density: bool = False):
         self._reader, self._density = reader, density
-        single = reader.attrs.get("precision") == "single"    # as store.layout.psi_dtype
+        single = "single" in (reader.attrs.get("precision"),   # as store.layout.snapshot_dtype
+                              reader.attrs.get("snapshot_precision"))
         self.dtype = np.dtype(("f4" if single else "f8") if density else
                               ("c8" if single else "c16"))
 

@@ -143,6 +143,9 @@ class RecordSpec(_Strict):
     every: Optional[float] = Field(default=None, gt=0)
     output: Optional[str] = None
     compress: bool = False
+    # ψ snapshots stored in single precision (half the file, for movies) while the run
+    # computes, and checkpoints, in evolve.precision; default: evolve.precision
+    precision: Optional[Literal["double", "single"]] = None
     sample_steps: Optional[int] = Field(default=None, ge=1, le=1000,
                                         description="steps between flux/region samples "
                                                     "(default: 50 per packet passage)")
