@@ -200,3 +200,23 @@ def test_single_precision_snapshots_keep_a_double_state(tmp_path):
         scale = np.max(np.abs(d.psi(-1)))
         np.testing.assert_allclose(s.psi(-1), d.psi(-1), atol=1e-6 * scale)
         np.testing.assert_array_equal(s.observables()["norm"], d.observables()["norm"])
+
+
+def test_a_term_of_one_coordinate_acts_along_y_with_axis_y():
+    """axis: y turns a barrier across the plane: V depends on y alone, and its cell
+    averages keep the barrier's area, height × width (geometry)."""
+    text = PLANE.replace("- step: {at: 10.0, height: 1.0}",
+                         "- barrier: {start: -2.1, end: 1.7, height: 0.3, axis: y}")
+    setup = build(loads(text, source="p.yaml"))
+    assert np.ptp(setup.V, axis=1).max() == 0          # constant along x
+    assert setup.V[:, 0].sum() * setup.grid.dy == pytest.approx(0.3 * 3.8, rel=1e-12)
+    assert not setup.potential.along_x
+    line = textwrap.dedent("""\
+        grid: {span: [-40.0, 40.0], points: 256}
+        potential:
+          - step: {at: 0.0, height: 1.0, axis: y}
+        packet: {center: -10.0, width: 4.0, energy: 0.5}
+        evolve: {duration: 1.0}
+        """)
+    with pytest.raises(ScenarioError, match=r"^l\.yaml:3: potential\[0\]\.step\.axis: "):
+        loads(line, source="l.yaml")

@@ -47,6 +47,9 @@ def _render_plane(args) -> int:
     power-law (--density-power, default 0.5) or --log scale."""
     from . import render
     from .render.options import parse_fps
+    if args.seconds is not None or args.xlim:
+        raise UsageError("sojourn render: --seconds and --xlim are for runs on a line; a movie "
+                         "of a run in the plane has one frame per snapshot and shows the box")
     curves = [c.strip() for c in (args.curves or "phase").split(",")]
     options = {"colour": "density" if "phase" not in curves else "phase",
                "scale": "log" if args.log else "power",

@@ -3,7 +3,7 @@ concrete (V, W and the guards' findings), as pure functions.
 
 Conventions: arrays on a `PlaneGrid` have shape (Ny, Nx). A term of x alone
 acts along x with its exact cell averages (a jump keeps its position, as on a
-line) broadcast over y; a shape of the plane holds each cell's covered
+line) broadcast over y (with `axis: y`, along y broadcast over x); a shape of the plane holds each cell's covered
 fraction; a formula in y is sampled at the grid points. The absorbing layers
 line all four sides (each side the line's quadratic ramp; in a corner the two
 add). Build assembles the Setup; the engine runs it unchanged (its kick and
@@ -30,7 +30,8 @@ def plane_point(terms, x: float, y: float, mass: float) -> float:
         if getattr(term, "planar", False):
             total += float(np.asarray(term.plane(np.array([x]), np.array([y]), mass))[0])
         else:
-            total += float(np.asarray(term.point(np.array([x]), mass))[0])
+            at = y if getattr(term, "axis", "x") == "y" else x
+            total += float(np.asarray(term.point(np.array([at]), mass))[0])
     return total
 
 
@@ -47,9 +48,12 @@ def _covered(term, x: np.ndarray, y: np.ndarray, dx: float, dy: float, mass: flo
 def plane_values(terms, grid, mass: float) -> np.ndarray:
     """V on the grid (Ny, Nx): the sum of the terms (see the module note)."""
     V = np.zeros(grid.shape)
-    along = [t for t in terms if not getattr(t, "planar", False)]
-    if along:
-        V += sum(np.asarray(t.cell(grid.x, grid.dx, mass), float) for t in along)[None, :]
+    for axis, coordinate, spacing, expand in (("x", grid.x, grid.dx, np.s_[None, :]),
+                                              ("y", grid.y, grid.dy, np.s_[:, None])):
+        along = [t for t in terms if not getattr(t, "planar", False)
+                 and getattr(t, "axis", "x") == axis]
+        if along:
+            V += sum(np.asarray(t.cell(coordinate, spacing, mass), float) for t in along)[expand]
     for term in (t for t in terms if getattr(t, "planar", False)):
         for start in range(0, grid.ny, ROWS):
             rows = slice(start, min(start + ROWS, grid.ny))

@@ -426,6 +426,11 @@ def dimension_problem(scenario: Scenario) -> Optional[tuple[tuple, str]]:
         return ("packet", "direction"), ("an angle needs a grid in the plane; on a line it is "
                                          "'right' or 'left'")
     for index, (item, term) in enumerate(zip(scenario.potential, scenario.terms)):
+        if getattr(term, "axis", "x") == "y" and (not plane or getattr(term, "planar", False)):
+            kind = next(iter(type(item).model_fields))
+            return ("potential", index, kind, "axis"), (
+                "a shape of the plane has no axis; give its outline in x and y" if plane else
+                "axis: y needs a grid in the plane (grid.span [[x0, x1], [y0, y1]])")
         if getattr(term, "planar", False) and not plane:
             kind = next(iter(type(item).model_fields))
             what = "a formula in y" if kind == "expression" else f"'{kind}' is a shape of the plane"

@@ -72,7 +72,8 @@ class Potential:
     def along_x(self) -> bool:
         """True when V depends on x alone (no shape of the plane, no formula in y):
         in the plane the problem then separates and the line's theory applies."""
-        return not any(getattr(t, "planar", False) for t in self.terms)
+        return not any(getattr(t, "planar", False) or getattr(t, "axis", "x") != "x"
+                       for t in self.terms)
 
     @property
     def confining(self) -> bool:

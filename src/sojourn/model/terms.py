@@ -10,6 +10,8 @@ import math
 from typing import ClassVar, NamedTuple, Optional
 
 import numpy as np
+from typing import Literal
+
 from pydantic import BaseModel, ConfigDict, Field, ValidationInfo, field_validator
 
 class Shape(NamedTuple):
@@ -44,7 +46,8 @@ class Term(BaseModel):
        span; the default asks the methods above; terms known only by their
        values (`sampled.Table`, `sampled.Expression`) read them off their data
        or off a sampling no coarser than `spacing`.
-    7. In the plane, a term of x alone acts along x (broadcast over y). A
+    7. In the plane, a term of x alone acts along x (broadcast over y), or
+       along y with ``axis: y`` (its x read as y; a line refuses it). A
        term of the plane sets ``planar`` True and provides ``plane(x, y, mass)``
        (values at points of the plane, broadcast) and ``bounds()``; a scenario
        on a line refuses it (`shapes`).
@@ -57,6 +60,7 @@ class Term(BaseModel):
     piecewise_constant: ClassVar[bool] = False
     confining: ClassVar[bool] = False
     planar: ClassVar[bool] = False
+    axis: Literal["x", "y"] = "x"   # in the plane: the coordinate the term depends on
 
     def point(self, x, mass: float = 1.0) -> np.ndarray:
         raise NotImplementedError
@@ -92,7 +96,8 @@ class Term(BaseModel):
         return Shape(self.levels(mass), self.support(), self.breakpoints(), self.jumps())
 
     def describe(self) -> str:
-        fields = ", ".join(f"{k}={v}" for k, v in self.model_dump().items())
+        shown = self.model_dump(exclude={"axis"} if self.axis == "x" else None)
+        fields = ", ".join(f"{k}={v}" for k, v in shown.items())
         return f"{self.kind}({fields})"
 
 
