@@ -83,31 +83,36 @@ def normal_run(rf, potential, transverse: packets.PacketInfo) -> ForwardRun:
 
 
 def mean_normal_wavenumber(potential, info: packets.PacketInfo, hbar: float, mass: float,
-                           reference: float) -> float:
-    """⟨k_x⟩ over |ψ̃₀(k_x)|²R(k_x) (the band k₀ ± 8σ_k, trapezoid on 1601 points):
-    the speed of the filtered mirror image is ħ⟨k_x⟩/m."""
+                           reference: float, channel: str = "reflection") -> float:
+    """⟨k_x⟩ over |ψ̃₀(k_x)|²R(k_x) (T(k_x) for transmission; the band k₀ ± 8σ_k,
+    trapezoid on 1601 points): the filtered reference moves at ħ⟨k_x⟩/m."""
     k0, sk = abs(info.k0), info.sigma_k
     k = np.linspace(max(k0 - 8 * sk, k0 / 100), k0 + 8 * sk, 1601)
     sc = scatter(potential, info.level + (hbar * k) ** 2 / (2 * mass), hbar=hbar,
                  x_r=reference, direction="right" if info.k0 > 0 else "left", dwell=False)
-    w = np.exp(-0.5 * ((k - k0) / sk) ** 2) * np.nan_to_num(np.asarray(sc.R, float))
+    share = sc.R if channel == "reflection" else sc.T
+    w = np.exp(-0.5 * ((k - k0) / sk) ** 2) * np.nan_to_num(np.asarray(share, float))
     return float(np.trapezoid(w * k, k) / np.trapezoid(w, k))
 
 
 def lateral_shift(rf, run: ForwardRun, transverse: packets.PacketInfo, stats: dict,
-                  k_mean: float) -> dict:
-    """D of the reflected packet in each usable snapshot, and their mean (module note, 2)."""
+                  k_mean: float, channel: str = "reflection") -> dict:
+    """D of the outgoing packet in each usable snapshot (module note, 2): against
+    the mirror image at x_r for reflection, against the free packet moved on by
+    x_t − x_r for transmission (the line's references, §5), both moving at
+    ħ⟨k_x⟩/m. Positive D: further along +y·sign(k_y) than the reference ray."""
     y = np.asarray(rf.coordinate("y"), float)
     x = np.asarray(rf.x, float)
     cell = float(x[1] - x[0]) * float(y[1] - y[0])
-    sign, x_r, info = run.sign, run.x_r, run.info
-    mine = sign * x < x_r     # the incidence side, in the file's own frame
+    sign, info = run.sign, run.info
+    reflected = channel == "reflection"
+    mine = sign * x < run.x_r if reflected else sign * x > run.x_t   # the file's own frame
     W = rf.absorber
     inside_y = (float(y[0]), float(y[-1]))
     if W is not None:
         free = y[np.asarray(W, float).min(axis=1) == 0]
         inside_y = (float(free[0]), float(free[-1])) if free.size else inside_y
-    usable = separated(run, stats, "reflection")
+    usable = separated(run, stats, channel)
     vx = hbar_over_m(rf) * k_mean
     vy = transverse.group_velocity
     shifts, times = [], []
@@ -124,9 +129,13 @@ def lateral_shift(rf, run: ForwardRun, transverse: packets.PacketInfo, stats: di
         wy = math.sqrt(max(float(rows @ (y - yc) ** 2), 0.0))
         if not (inside_y[0] + SEPARATION_Y * wy <= yc <= inside_y[1] - SEPARATION_Y * wy):
             continue
-        xm = 2 * x_r - (info.center + vx * t)
         ym = transverse.center + vy * t
-        shifts.append((yc - ym) + (vy / vx) * (xc - xm))
+        if reflected:
+            xm = 2 * run.x_r - (info.center + vx * t)
+            shifts.append((yc - ym) + (vy / vx) * (xc - xm))
+        else:
+            xm = info.center + (run.x_t - run.x_r) + vx * t
+            shifts.append((yc - ym) - (vy / vx) * (xc - xm))
         times.append(t)
     return {"values": np.array(shifts), "times": np.array(times), "tan": vy / vx}
 
@@ -143,8 +152,8 @@ def measure_plane(rf, measure_run) -> DelayReport:
     potential = scenario.build_potential()
     if not potential.along_x:
         raise MeasureError(f"{rf.path}: the potential has a shape of the plane (or a formula "
-                           "in y), so the motion along x does not separate: there is no delay "
-                           "along the normal or lateral shift to measure")
+                           "in y, or a term along y), so the motion along x does not separate: "
+                           "there is no delay along the normal or lateral shift to measure")
     normal = packets.PacketInfo(**rf.packet)
     transverse = transverse_packet(scenario, normal)
     run = normal_run(rf, potential, transverse)
@@ -156,30 +165,58 @@ def measure_plane(rf, measure_run) -> DelayReport:
     angle = math.degrees(math.atan2(transverse.k0, normal.k0))
     report.plane = {"angle": angle, "k_x": normal.k0, "k_y": transverse.k0,
                     "energy_normal": normal.energy}
-    if report.reflection is not None:
-        stats = snapshot_stats(run)
-        k_mean = mean_normal_wavenumber(potential, normal, run.hbar, run.mass, rf.reference) \
-            if prediction is not None else abs(normal.k0)
-        found = lateral_shift(rf, run, transverse, stats, k_mean)
-        values, tan = found["values"], found["tan"]
-        shift = prediction.reflection.centroid_shift \
-            if prediction is not None and prediction.reflection is not None else None
-        predicted = None if shift is None else tan * shift
-        wigner = prediction.reflection.wigner_delay if prediction is not None and \
-            prediction.reflection is not None else None
-        measured = float(np.mean(values)) if values.size else None
-        if measured is None:
-            report.warnings.append("the reflected packet is in no snapshot both separated from "
-                                   "the potential and clear of the y absorbers: no lateral shift")
-        report.reflection.lateral_shift = {
-            "measured": measured, "predicted": predicted,
+    levels = potential.levels()
+    for channel in ("reflection", "transmission"):
+        found = getattr(report, channel)
+        if found is None:
+            continue
+        if channel == "transmission" and levels[0] != levels[1]:
+            report.notes.append("no lateral shift for the transmitted packet: the levels on "
+                                "the two sides differ (a refracted ray; not measured yet)")
+            continue
+        found.lateral_shift = _shift_entry(rf, run, transverse, normal, prediction, potential,
+                                           found, report.warnings)
+    return report
+
+
+def measured_wavenumber(report) -> float:
+    """⟨k_x⟩ of the channel's filtered reference as the line's methods use it:
+    |ψ̃₀|² times the run's own P(k) where the channel is filtered (a reference
+    speed off by δv moves the reference by δv·t: it must be the run's)."""
+    sp = report.spectrum
+    share = np.clip(np.nan_to_num(np.asarray(sp.probability, float)), 0.0, 1.0) \
+        if report.filtered else np.ones_like(sp.k)
+    w = sp.weight * share
+    return float(np.trapezoid(w * sp.k, sp.k) / np.trapezoid(w, sp.k))
+
+
+def _shift_entry(rf, run, transverse, normal, prediction, potential, report,
+                 warnings) -> dict:
+    """The lateral-shift entry of one channel: measured, predicted, deviation,
+    error (None without reruns), spread, stationary, snapshots_used. The
+    measurement's reference moves at the run's ⟨k_x⟩, the prediction's at theory's."""
+    channel = report.channel
+    predicted_channel = None if prediction is None else getattr(prediction, channel)
+    found = lateral_shift(rf, run, transverse, snapshot_stats(run), measured_wavenumber(report),
+                          channel)
+    values = found["values"]
+    shift = None if predicted_channel is None else predicted_channel.centroid_shift
+    k_mean = mean_normal_wavenumber(potential, normal, run.hbar, run.mass, rf.reference,
+                                    channel) if predicted_channel is not None else abs(normal.k0)
+    predicted = None if shift is None else \
+        transverse.group_velocity / (hbar_over_m(rf) * k_mean) * shift
+    wigner = None if predicted_channel is None else predicted_channel.wigner_delay
+    measured = float(np.mean(values)) if values.size else None
+    if measured is None:
+        warnings.append(f"the {channel} packet is in no snapshot both separated from the "
+                        "potential and clear of the y absorbers: no lateral shift")
+    return {"measured": measured, "predicted": predicted,
             "deviation": None if measured is None or predicted is None else measured - predicted,
             "error": None,   # a discretisation bar needs reruns (as on a line)
             "spread": float(np.ptp(values) / 2) if values.size > 1 else None,
             "stationary": None if wigner is None else
             (transverse.k0 / normal.k0) * normal.group_velocity * wigner,
             "snapshots_used": int(values.size)}
-    return report
 
 
 def shift_row(report) -> Optional[dict]:
