@@ -20,6 +20,7 @@ from pydantic import (BaseModel, BeforeValidator, ConfigDict, Discriminator, Fie
 from ..model import potentials as pot
 from ..model.units import UnitSystem, get as get_units
 from ..errors import ScenarioError
+from .dimensions import dimension_problem
 from .yamlread import format_path, parse_yaml, read_text
 
 
@@ -408,37 +409,6 @@ def validate(data: Any, source: str = "<scenario>", lines: Optional[dict] = None
         loc, message = problem
         raise ScenarioError(f"{source}:{_line_for(loc, lines)}: {format_path(loc)}: {message}")
     return scenario
-
-
-def dimension_problem(scenario: Scenario) -> Optional[tuple[tuple, str]]:
-    """(key path, message) for the first key that does not fit the grid's
-    dimensions (a line or the plane), or None when all do."""
-    plane = scenario.dimensions == 2
-    packet = scenario.packet
-    if plane != isinstance(packet.center, tuple):
-        return ("packet", "center"), (
-            "must be [x, y] on a grid in the plane" if plane else
-            "must be one number on a grid along one axis (a pair needs grid.span [[x0, x1], "
-            "[y0, y1]])")
-    if not plane and isinstance(packet.width, tuple):
-        return ("packet", "width"), "[σx, σy] needs a grid in the plane; give one width"
-    if not plane and not isinstance(packet.direction, str):
-        return ("packet", "direction"), ("an angle needs a grid in the plane; on a line it is "
-                                         "'right' or 'left'")
-    for index, (item, term) in enumerate(zip(scenario.potential, scenario.terms)):
-        if getattr(term, "axis", "x") == "y" and (not plane or getattr(term, "planar", False)):
-            kind = next(iter(type(item).model_fields))
-            return ("potential", index, kind, "axis"), (
-                "a shape of the plane has no axis; give its outline in x and y" if plane else
-                "axis: y needs a grid in the plane (grid.span [[x0, x1], [y0, y1]])")
-        if getattr(term, "planar", False) and not plane:
-            kind = next(iter(type(item).model_fields))
-            what = "a formula in y" if kind == "expression" else f"'{kind}' is a shape of the plane"
-            return ("potential", index, kind), (f"{what}: it needs grid.span [[x0, x1], "
-                                                "[y0, y1]] and points [Nx, Ny]")
-    if plane and scenario.larmor is not None:
-        return ("larmor",), "a Larmor clock runs on a line only (one grid axis)"
-    return None
 
 
 def loads(text: str, source: str = "<scenario>", base_dir: Optional[Path] = None) -> Scenario:
