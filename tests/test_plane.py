@@ -220,3 +220,25 @@ def test_a_term_of_one_coordinate_acts_along_y_with_axis_y():
         """)
     with pytest.raises(ScenarioError, match=r"^l\.yaml:3: potential\[0\]\.step\.axis: "):
         loads(line, source="l.yaml")
+
+
+def test_movie_and_figure_of_a_run_in_the_plane(tmp_path):
+    """A frame is the density coloured by phase with the potential's outline; the
+    movie has one frame per snapshot; a figure shows the chosen snapshots."""
+    import imageio.v3 as iio
+    from sojourn.render.plane import PlaneOptions, image, render_plane_figure, \
+        render_plane_movie
+    from sojourn.render.styles import look
+    from sojourn.workflows import run
+    setup = build(loads(PLANE, source=str(tmp_path / "p.yaml")))
+    path = run(setup, tmp_path / "p.h5")
+    movie = render_plane_movie(path, tmp_path / "p.mp4", PlaneOptions(size=(320, 180)))
+    import imageio_ffmpeg
+    assert imageio_ffmpeg.count_frames_and_secs(str(movie))[0] == setup.snapshots
+    figure = render_plane_figure(path, tmp_path / "p.png", times=[0.0, 4.0])
+    assert iio.imread(figure).shape[0] > 100
+    # brightness follows the scaled density, hue the phase (arg ψ = 0 → red)
+    psi = np.array([[1.0, 0.25j]])
+    rgb = image(psi, 1.0, PlaneOptions(power=1.0), look("talk-dark"))
+    assert rgb[0, 0].max() == pytest.approx(1.0) and rgb[0, 0, 0] == rgb[0, 0].max()
+    assert rgb[0, 1].max() == pytest.approx(0.0625)
