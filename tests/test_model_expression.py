@@ -54,7 +54,7 @@ def test_values_may_be_non_finite_for_the_caller_to_judge():
 @pytest.mark.parametrize("text, why", [
     ("__import__('os')", "not an allowed function"),
     ("x.real", "Attribute"),
-    ("y + 1", "unknown name 'y'"),
+    ("z + 1", "unknown name 'z'"),
     ("lambda: 1", "Lambda"),
     ("[1, 2]", "List"),
     ("'text'", "only numbers"),

@@ -15,9 +15,12 @@ from sojourn.workflows import run_in_memory
 ROOT = Path(__file__).resolve().parents[1]
 SCATTERING = ["configs/step.yaml", "configs/barrier.yaml", "configs/smooth_step.yaml",
               "configs/double_barrier.yaml", "configs/step_small.yaml",
-              "configs/larmor_clock.yaml", "src/sojourn/data/demo.yaml"]
-SHIPPED = SCATTERING + ["configs/harmonic.yaml", "configs/driven_barrier.yaml"]
-# driven_barrier measures sidebands, not delays: tests/physics/test_sidebands_measure.py
+              "configs/larmor_clock.yaml", "src/sojourn/data/demo.yaml",
+              "configs/oblique_step.yaml"]
+# driven_barrier measures sidebands, not delays: tests/physics/test_sidebands_measure.py;
+# the double slit scatters off a shape of the plane: no delays along a normal (it is a movie)
+SHIPPED = SCATTERING + ["configs/harmonic.yaml", "configs/driven_barrier.yaml",
+                        "configs/double_slit.yaml"]
 QUICK = ["src/sojourn/data/demo.yaml", "configs/step.yaml", "configs/step_small.yaml",
          "configs/barrier.yaml", "configs/larmor_clock.yaml"]     # a few seconds each here
 

@@ -41,21 +41,33 @@ class Snapshots:
 
     def __init__(self, reader: RunReader, density: bool = False):
         self._reader, self._density = reader, density
-        single = reader.attrs.get("precision") == "single"    # as store.layout.psi_dtype
+        single = "single" in (reader.attrs.get("precision"),   # as store.layout.snapshot_dtype
+                              reader.attrs.get("snapshot_precision"))
         self.dtype = np.dtype(("f4" if single else "f8") if density else
                               ("c8" if single else "c16"))
-        self._spinor = len(tuple(getattr(reader, "axes", ("x",)))) > 1
-        state = tuple(np.shape(reader.V)) if self._spinor else (len(reader.x),)
-        self.shape = (len(reader),) + (state[-1:] if density else state)
-        self.ndim = len(self.shape)
+        axes = tuple(reader.axes)
+        # a spinor's density adds its components: the component axis leaves the view
+        self._spin_axis = (axes.index("component") - len(axes)) if "component" in axes else None
+        self.axes = tuple(a for a in axes if not (density and a == "component"))
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """(S, N) on a line; (S, *axes) for ψ on more axes ((S, Ny, Nx) in the plane,
+        (S, 2, N) for a spinor's ψ)."""
+        return (len(self._reader),) + tuple(len(self._reader.coordinate(a)) for a in self.axes)
+
+    @property
+    def ndim(self) -> int:
+        return 1 + len(self.axes)
 
     def __len__(self) -> int:
         return len(self._reader)
 
     def __getitem__(self, key):
         rows, columns = (key[0], key[1:]) if isinstance(key, tuple) else (key, ())
-        if len(columns) > self.ndim - 1:
-            raise IndexError(f"snapshots have {self.ndim} axes: {len(columns) + 1} indices given")
+        if len(columns) > len(self.axes):
+            raise IndexError(f"snapshots are (t, {', '.join(self.axes)}): "
+                             f"{len(columns) + 1} indices given")
         if isinstance(rows, (int, np.integer)):
             values = self._reader.psi(int(rows))
         else:
@@ -64,8 +76,8 @@ class Snapshots:
             columns = (slice(None),) + columns
         if self._density:
             values = np.abs(values) ** 2
-            if self._spinor:     # the spin components' densities add
-                values = values.sum(axis=-2)
+            if self._spin_axis is not None:     # the spin components' densities add
+                values = values.sum(axis=self._spin_axis)
         return values[columns] if columns else values
 
     def __array__(self, dtype=None, copy=None):
@@ -161,8 +173,9 @@ class Run:
 
     # -- views and life ----------------------------------------------------------------
     def to_xarray(self):
-        """An xarray.Dataset with dimensions t and x: coordinates t, x; data psi and
-        density (t, x), lazily indexed (rows read when asked, no dask needed), V and
+        """An xarray.Dataset with dimensions t and ψ's axes (x; y, x in the plane;
+        component, x for a spinor): coordinates on each; data psi and density
+        (a spinor's summed over its components), lazily indexed (rows read when asked, no dask needed), V and
         absorber (x), the observables (t); `units` and `long_name` on each, as
         in the run file."""
         return _dataset(self)
@@ -206,17 +219,16 @@ class _LazyRows(BackendArray):
 
 def _dataset(run: Run):
     label = labels(run.units)
-    t, x = run.t, run.x
-    coords = {"t": ("t", t, label["t"]), "x": ("x", x, label["x"])}
-    state = tuple(getattr(run.reader, "axes", ("x",)))
-    if len(state) > 1:      # a spinor: component 0 spin up, 1 spin down (along the field)
-        coords["component"] = ("component", np.arange(np.shape(run.V)[0]),
-                               {"long_name": "spin component (0 up, 1 down along z)"})
-    data = {name: (("t",) + dims, indexing.LazilyIndexedArray(_LazyRows(view)), label[name])
-            for name, view, dims in (("psi", run.psi, state), ("density", run.density, ("x",)))}
-    data["V"] = (state, run.V, label["V"])
+    axes = tuple(run.reader.axes)   # ("x",) on a line, ("y", "x") in the plane, ("component", "x")
+    coords = {"t": ("t", run.t, label["t"]),
+              **{name: (name, run.reader.coordinate(name), label.get(name, label["x"]))
+                 for name in axes}}
+    data = {name: (("t",) + view.axes, indexing.LazilyIndexedArray(_LazyRows(view)), label[name])
+            for name, view in (("psi", run.psi), ("density", run.density))}
+    data["V"] = (axes, run.V, label["V"])
     if run.absorber is not None:
-        data["absorber"] = ("x", run.absorber, label["absorber"])
+        data["absorber"] = (axes[len(axes) - np.ndim(run.absorber):], run.absorber,
+                            label["absorber"])
     for name, values in run.observables.items():
         if name != "t":
             data[name] = ("t", values, label[name])

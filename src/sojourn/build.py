@@ -10,7 +10,7 @@ from typing import Optional
 import numpy as np
 
 from .model import packets
-from .model.grid import Grid
+from .model.grid import Grid, PlaneGrid
 from .model.potentials import Potential
 from .model.absorber import absorber_profile, default_absorber_strength
 from .model.spin import clock_region, spin_potentials
@@ -21,6 +21,7 @@ from .theory.scattering import scatter
 from .guards import (DEFAULT_DT_PHASE, Finding, guard, refuse_endless, refuse_oversized,
                      time_step_limit)
 from .guards_drive import STEPS_PER_PERIOD, drive_findings
+from .planar import guard_plane, plane_absorber, plane_point, plane_values
 
 
 @dataclass
@@ -43,6 +44,7 @@ class Setup:
     region: Optional[tuple[float, float]]
     findings: list = field(default_factory=list)
     drive: Optional[TimeDependence] = None     # what V gains in time; None: static
+    transverse: Optional[packets.PacketInfo] = None   # in the plane: the motion along y
 
     @property
     def hbar(self) -> float:
@@ -77,6 +79,8 @@ class Setup:
         return tuple(len(values) for _, values in self.state_axes)
 
     def psi0(self) -> np.ndarray:
+        if self.transverse is not None:
+            return packets.on_plane(self.grid, self.packet, self.transverse)
         psi = packets.on_grid(self.grid, self.packet)
         lead = V_lead(self.V, self.grid)
         if lead:   # each component carries the packet's amplitude / √C (one spin direction)
@@ -330,20 +334,27 @@ def build(scenario: Scenario) -> Setup:
 def _build(scenario: Scenario) -> Setup:
     findings: list[Finding] = []
     refuse_oversized(scenario)
-    grid = Grid.from_spec(scenario.grid)
+    plane = scenario.dimensions == 2
+    grid = PlaneGrid.from_spec(scenario.grid) if plane else Grid.from_spec(scenario.grid)
     hbar, mass = scenario.hbar, scenario.particle_mass
     potential = scenario.build_potential()
-    V = potential.on_grid(grid.x, grid.dx)
+    V = plane_values(scenario.terms, grid, mass) if plane else potential.on_grid(grid.x, grid.dx)
     if not np.all(np.isfinite(V)):
-        bad = grid.x[~np.isfinite(V)][0]
+        bad = np.broadcast_to(grid.x, V.shape)[~np.isfinite(V)][0]
         findings.append(Finding("error", "potential",
                                 f"V is not finite (nan or inf) at x = {bad:g}"))
         V = np.nan_to_num(V, nan=0.0, posinf=0.0, neginf=0.0)
-    level = float(potential(np.array([scenario.packet.center]))[0])
-    if not math.isfinite(level):
-        level = 0.0   # the finding above refuses the run; describe the packet all the same
+    transverse = None
     try:
-        info = packets.describe(scenario.packet, hbar, mass, level)
+        if plane:
+            level = plane_point(scenario.terms, *scenario.packet.center, mass)
+            level = level if math.isfinite(level) else 0.0
+            info, transverse = packets.in_plane(scenario.packet, hbar, mass, level)
+        else:
+            level = float(potential(np.array([scenario.packet.center]))[0])
+            if not math.isfinite(level):
+                level = 0.0   # the finding above refuses the run; describe the packet all the same
+            info = packets.describe(scenario.packet, hbar, mass, level)
     except ValueError as exc:
         raise ScenarioError(f"{scenario.source}: packet.energy: {exc}") from None
 
@@ -399,8 +410,9 @@ def _build(scenario: Scenario) -> Setup:
         speed_slow = hbar * max(abs(info.k0) - 3 * info.sigma_k, info.sigma_k) / mass
         strength = scenario.absorber.strength or default_absorber_strength(
             absorber_width, speed_slow, hbar)
-        W = absorber_profile(grid.x, grid.left, grid.right, absorber_width, strength)
-        if 2 * absorber_width >= grid.length:
+        W = plane_absorber(grid, absorber_width, strength) if plane else \
+            absorber_profile(grid.x, grid.left, grid.right, absorber_width, strength)
+        if 2 * absorber_width >= min(grid.length, getattr(grid, "height", grid.length)):
             findings.append(Finding("error", "absorber.width",
                                     f"the layers ({absorber_width:g} each side) fill the box"))
         wavelength = 2 * math.pi / max(abs(info.k0), 1e-300)
@@ -417,8 +429,8 @@ def _build(scenario: Scenario) -> Setup:
         findings += _clock_findings(clock[0], grid, absorber_width, info)
     drive = TimeDependence.of_potential(potential, grid.x, grid.dx) if potential.driven else None
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
-                  sample_steps, detectors, reference, region, findings, drive)
-    guard(setup, limit, absorber_width)
+                  sample_steps, detectors, reference, region, findings, drive, transverse)
+    (guard_plane if plane else guard)(setup, limit, absorber_width)
     drive_findings(setup)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)

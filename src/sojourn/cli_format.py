@@ -22,10 +22,15 @@ def format_check(scenario, setup) -> list:
         f"mass {scenario.mass} m_e",
         f"potential  {setup.potential.describe()}",
         f"grid       {g.points} points on [{g.left:g}, {g.right:g}), dx = {g.dx:.4g}; "
-        f"k_max = {g.k_max:.4g} (packet needs ≥ {needed:.4g})",
+        f"k_max = {g.k_max:.4g} (packet needs ≥ {needed:.4g})"
+        + (f"; along y {g.ny} points on [{g.bottom:g}, {g.top:g}), dy = {g.dy:.4g}"
+           if setup.transverse is not None else ""),
         f"packet     centre {info.center:g}, width {info.width:g}, k₀ = {info.k0:.5g}, "
         f"σ_k = {info.sigma_k:.4g} (k₀/σ_k = {info.k_ratio:.3g}); E₀ = {info.energy:.6g}, "
-        f"⟨E⟩ = {info.mean_energy:.6g} {units.energy}; v₀ = {info.group_velocity:.4g}",
+        f"⟨E⟩ = {info.mean_energy:.6g} {units.energy}; v₀ = {info.group_velocity:.4g}"
+        + (f" (the motion along x; along y: centre {setup.transverse.center:g}, width "
+           f"{setup.transverse.width:g}, k_y = {setup.transverse.k0:.5g})"
+           if setup.transverse is not None else ""),
         f"time       dt = {setup.dt:.4g} {units.time}{' (chosen)' if setup.dt_chosen else ''}, "
         f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_max+ΔV)/ħ = "
         f"{setup.grid_phase:.3g} (limit 2π, safe below π); scheme {scenario.evolve.scheme}",
@@ -57,7 +62,9 @@ def format_inspect(info: dict) -> list:
              f"  status {info['status']}, format {info['format_version']}, written by sojourn "
              f"{info['sojourn_version']} on {info['created']}",
              f"  units: length {u.get('length')}, time {u.get('time')}, energy {u.get('energy')}",
-             f"  {info['grid_points']} grid points, {info['snapshots']} snapshots up to t = "
+             f"  {info['grid_points']}"
+             + (f" × {info['grid_points_y']} (x × y)" if "grid_points_y" in info else "")
+             + f" grid points, {info['snapshots']} snapshots up to t = "
              f"{t_last} {u.get('time')}, dt = {info['dt']:g}, scheme {info['scheme']}",
              "  last recording: " + ", ".join(f"{k} = {v:.6g}" for k, v in info["final"].items()
                                               if k != "t"),
@@ -98,6 +105,19 @@ def format_delay_report(report, moves=None) -> list:
                          f"{num(r.deviation, 3):>12}{rel:>11}{err:>11}")
         lines.append(f"  phase delay at E₀ (Wigner) {num(ch.wigner)}; flux-weighted ⟨τ⟩_w "
                      f"{num(ch.packet)}")
+        shift = getattr(ch, "lateral_shift", None)
+        if shift:
+            rel = (shift["deviation"] / abs(shift["predicted"])
+                   if shift.get("deviation") is not None and shift.get("predicted") else None)
+            lines.append(f"  lateral shift D along the interface: measured {num(shift['measured'])}"
+                         f", packet-averaged {num(shift['predicted'])} (relative "
+                         f"{'—' if rel is None else f'{rel:.2e}'}); stationary phase at k₀ "
+                         f"{num(shift.get('stationary'))}")
+    if getattr(report, "plane", None):
+        p = report.plane
+        lines.insert(1, f"in the plane: incidence at {p['angle']:.4g}° from the normal x; the "
+                        f"delays are those of the motion along x (k_x = {p['k_x']:.6g}, "
+                        f"E_x = {p['energy_normal']:.6g})")
     d = report.dwell
     if d.get("measured") is not None:
         lines += ["", f"dwell time in [{d['region'][0]:g}, {d['region'][1]:g}]: measured "
@@ -149,6 +169,7 @@ def describe_runfile(rf, path) -> dict:
         "created": str(attrs.get("created", "")), "units": rf.units,
         "provenance": json.loads(attrs.get("provenance", "{}")),
         "grid_points": rf.points,
+        **({"grid_points_y": len(rf.coordinate("y"))} if "y" in rf.axes else {}),
         "snapshots": n, "t_last": float(obs["t"][-1]) if n else None,
         "dt": float(attrs["dt"]), "scheme": str(attrs["scheme"]),
         "detectors": [float(d) for d in rf.samples()["detectors"]],

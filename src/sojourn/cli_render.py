@@ -14,6 +14,8 @@ def cmd_render(args) -> int:
     if not args.output and not args.figure:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
     _flag_forced(args.file)
+    if render.is_plane_run(args.file):
+        return _render_plane(args)
     common = {}
     if args.xlim:
         common["xlim"] = render.parse_xlim(args.xlim)
@@ -40,6 +42,35 @@ def cmd_render(args) -> int:
     return 0
 
 
+def _render_plane(args) -> int:
+    """A run in the plane: density (coloured by phase unless --curves density),
+    power-law (--density-power, default 0.5) or --log scale."""
+    from . import render
+    from .render.options import parse_fps
+    if args.seconds is not None or args.xlim:
+        raise UsageError("sojourn render: --seconds and --xlim are for runs on a line; a movie "
+                         "of a run in the plane has one frame per snapshot and shows the box")
+    curves = [c.strip() for c in (args.curves or "phase").split(",")]
+    options = {"colour": "density" if "phase" not in curves else "phase",
+               "scale": "log" if args.log else "power",
+               "power": args.density_power if args.density_power != 1.0 else 0.5}
+    if args.style:
+        options["style"] = args.style
+    if args.output:
+        movie = render.PlaneOptions(fps=parse_fps(args.fps), **options, **(
+            {"size": render.parse_size(args.size, "px")} if args.size else {}))
+        update, close = _frame_bar(args.quiet)
+        try:
+            path = render.render_plane_movie(args.file, args.output, movie, update)
+        finally:
+            close()
+        _say(f"wrote {path}")
+    if args.figure:
+        figure = render.PlaneOptions(**{"style": "paper", **options}, size=(2400, 900))
+        _say(f"wrote {render.render_plane_figure(args.file, args.figure, args.times, figure)}")
+    return 0
+
+
 def add_render(sub) -> None:
     p = sub.add_parser("render", help="movies (.mp4, .gif) and figures (.png, .pdf, .svg)")
     p.add_argument("file", help="a run file")
@@ -63,7 +94,10 @@ def add_render(sub) -> None:
     p.add_argument("--density-power", type=float, default=1.0, metavar="P",
                    help="movie: draw (|ψ|²)^P on the density's scale so a weak scattered wave "
                         "shows (0.05 to 1; default 1, the true density; 0.5 is a good lift)")
-    p.add_argument("--log", action="store_true", help="figure: logarithmic colour scale")
+    p.add_argument("--log", action="store_true", help="figure: logarithmic colour scale (a "
+                                                      "run in the plane: movie and figure)")
+    p.add_argument("--times", type=float, nargs="+", metavar="T",
+                   help="a run in the plane: the snapshots the figure shows (nearest times)")
     p.add_argument("--dpi", type=float, help="figure resolution for PNG (default 300)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_render)

@@ -117,10 +117,11 @@ def _duration(seconds: float) -> str:
 
 def refuse_oversized(scenario) -> None:
     """Refuse, before any array exists, a grid that cannot fit in memory."""
-    memory = memory_estimate(scenario.grid.points, scenario.evolve.precision)
+    memory = memory_estimate(scenario.grid.total_points, scenario.evolve.precision)
     available = _physical_memory()
     if available and memory > 0.8 * available:
-        raise ScenarioError(f"{scenario.source}: grid.points: {scenario.grid.points} points need "
+        raise ScenarioError(f"{scenario.source}: grid.points: {scenario.grid.total_points} "
+                            f"points need "
                             f"about {_size(memory)} of memory; this machine has {_size(available)}")
 
 

@@ -20,6 +20,7 @@ from pydantic import (BaseModel, BeforeValidator, ConfigDict, Discriminator, Fie
 from ..model import potentials as pot
 from ..model.units import UnitSystem, get as get_units
 from ..errors import ScenarioError
+from .dimensions import dimension_problem
 from .yamlread import format_path, parse_yaml, read_text
 
 
@@ -29,33 +30,87 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
 
 
+def _pair_kind(value) -> str:
+    """'Plane' for a pair of pairs (or of numbers per axis), 'Line' otherwise: the
+    tag a one- or two-dimensional value is validated under (dropped from messages)."""
+    if isinstance(value, (list, tuple)) and value and isinstance(value[0], (list, tuple)):
+        return "Plane"
+    return "Line"
+
+
+def _per_axis_kind(value) -> str:
+    return "Plane" if isinstance(value, (list, tuple)) else "Line"
+
+
+Range = tuple[float, float]
+Count = Annotated[int, Field(ge=16, description="number of grid points")]
+
+
 class GridSpec(_Strict):
-    span: tuple[float, float]
-    points: int = Field(ge=16, description="number of grid points")
+    """One axis: span [left, right], points N. Two (the plane): span
+    [[x0, x1], [y0, y1]], points [Nx, Ny]."""
+
+    span: Annotated[Union[Annotated[Range, Tag("Line")],
+                          Annotated[tuple[Range, Range], Tag("Plane")]], Discriminator(_pair_kind)]
+    points: Annotated[Union[Annotated[Count, Tag("Line")],
+                            Annotated[tuple[Count, Count], Tag("Plane")]],
+                      Discriminator(_per_axis_kind)]
 
     @field_validator("span")
     @classmethod
     def _ordered(cls, span):
-        if not all(math.isfinite(v) for v in span):
-            raise ValueError("must be two finite numbers [left, right]")
-        if span[1] <= span[0]:
-            raise ValueError(f"right end must exceed left end (got [{span[0]}, {span[1]}])")
-        if not math.isfinite(span[1] - span[0]):
-            raise ValueError(f"the box [{span[0]:g}, {span[1]:g}] is too long for a float")
+        for pair in (span if isinstance(span[0], tuple) else (span,)):
+            if not all(math.isfinite(v) for v in pair):
+                raise ValueError("must be two finite numbers [left, right]")
+            if pair[1] <= pair[0]:
+                raise ValueError(f"right end must exceed left end (got [{pair[0]}, {pair[1]}])")
+            if not math.isfinite(pair[1] - pair[0]):
+                raise ValueError(f"the box [{pair[0]:g}, {pair[1]:g}] is too long for a float")
         return span
 
     @property
+    def dimensions(self) -> int:
+        return 2 if isinstance(self.span[0], tuple) else 1
+
+    @property
+    def x_span(self) -> Range:
+        return self.span[0] if self.dimensions == 2 else self.span
+
+    @property
+    def x_points(self) -> int:
+        return self.points[0] if self.dimensions == 2 else self.points
+
+    @property
+    def total_points(self) -> int:
+        return self.points[0] * self.points[1] if self.dimensions == 2 else self.points
+
+    @property
     def dx(self) -> float:
-        return (self.span[1] - self.span[0]) / self.points
+        return (self.x_span[1] - self.x_span[0]) / self.x_points
+
+
+Width = Annotated[float, Field(gt=0, description="rms width of |psi|^2")]
+
+
+def _direction_kind(value) -> str:
+    return "Word" if isinstance(value, str) else "Angle"
 
 
 class PacketSpec(_Strict):
+    """One axis: center x₀, width σ, direction right/left. The plane: center
+    [x₀, y₀], width σ or [σx, σy], direction in degrees from +x."""
+
     shape: Literal["gaussian"] = "gaussian"
-    center: float
-    width: float = Field(gt=0, description="rms width of |psi|^2")
+    center: Annotated[Union[Annotated[float, Tag("Line")], Annotated[Range, Tag("Plane")]],
+                      Discriminator(_per_axis_kind)]
+    width: Annotated[Union[Annotated[Width, Tag("Line")],
+                           Annotated[tuple[Width, Width], Tag("Plane")]],
+                     Discriminator(_per_axis_kind)]
     energy: Optional[float] = Field(default=None, gt=0)
     wavenumber: Optional[float] = None
-    direction: Literal["right", "left"] = "right"
+    direction: Annotated[Union[Annotated[Literal["right", "left"], Tag("Word")],
+                               Annotated[float, Tag("Angle")]],
+                         Discriminator(_direction_kind)] = "right"
 
     @model_validator(mode="after")
     def _one_of(self):
@@ -96,6 +151,9 @@ class RecordSpec(_Strict):
     every: Optional[float] = Field(default=None, gt=0)
     output: Optional[str] = None
     compress: bool = False
+    # ψ snapshots stored in single precision (half the file, for movies) while the run
+    # computes, and checkpoints, in evolve.precision; default: evolve.precision
+    precision: Optional[Literal["double", "single"]] = None
     sample_steps: Optional[int] = Field(default=None, ge=1, le=1000,
                                         description="steps between flux/region samples "
                                                     "(default: 50 per packet passage)")
@@ -192,8 +250,15 @@ class Scenario(_Strict):
         return [getattr(item, next(iter(type(item).model_fields))) for item in self.potential]
 
     def build_potential(self) -> pot.Potential:
-        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.span,
+        """The potential along x (in the plane: the terms that depend on x alone;
+        a shape or a formula in y makes it `Potential.along_x` False)."""
+        return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.x_span,
                              spacing=self.grid.dx / 4)
+
+    @property
+    def dimensions(self) -> int:
+        """1 on a line, 2 in the plane (the shape of `grid` decides)."""
+        return self.grid.dimensions
 
     def line_of(self, dotted: str) -> Optional[int]:
         """The line of a dotted key (e.g. 'packet.width') in the scenario's text, if known."""
@@ -346,6 +411,10 @@ def validate(data: Any, source: str = "<scenario>", lines: Optional[dict] = None
                             f"{_describe(error, loc)}") from None
     except (ValueError, TypeError, OSError) as exc:   # raised while reading a table file
         raise ScenarioError(f"{source}:1: {exc}") from None
+    problem = dimension_problem(scenario)
+    if problem is not None:
+        loc, message = problem
+        raise ScenarioError(f"{source}:{_line_for(loc, lines)}: {format_path(loc)}: {message}")
     return scenario
 
 

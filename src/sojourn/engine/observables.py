@@ -41,14 +41,16 @@ def fornberg_weights(z: float, nodes: np.ndarray, order: int) -> np.ndarray:
 
 class Detectors:
     """Probability current J = (ħ/m) Im(ψ* ∂ψ/∂x) at fixed positions, from
-    local 16-point interpolation stencils (no FFT, O(1) per detector).
+    local 16-point interpolation stencils (no FFT, O(1) per detector). In the
+    plane a detector is the line x = const and its flux is J_x summed over
+    the line (times dy: the grid's cell over dx).
 
     ``nodes`` are the grid indices the stencils read (sorted, unique): a state
     known only there gives the same flux as the full state."""
 
     def __init__(self, grid, positions, hbar: float, mass: float):
         self.positions = np.asarray(list(positions), dtype=float)
-        self.factor = hbar / mass
+        self.factor = hbar / mass * (getattr(grid, "cell", grid.dx) / grid.dx)   # 1 on a line
         m = STENCIL_HALF_WIDTH
         starts, value_w, slope_w = [], [], []
         for z in self.positions:
@@ -82,13 +84,13 @@ class Detectors:
         out = np.empty(len(self.positions))
         one_axis = psi.ndim == 1
         for i, (sl, wv, ws) in enumerate(zip(self._slices, self._value, self._slope)):
-            if one_axis:
-                current = (np.dot(psi[sl], wv).conjugate() * np.dot(psi[sl], ws)).imag
-            else:   # a leading axis (spinor components; weights folded per component or shared)
-                local = psi[..., sl]
+            local = psi[sl] if one_axis else psi[..., sl]
+            if wv.ndim == 1:
+                current = (np.dot(local, wv).conjugate() * np.dot(local, ws)).imag
+            else:   # weights folded with a factor on ψ's leading axes too (the plane)
                 current = (np.sum(local * wv, axis=-1).conjugate()
-                           * np.sum(local * ws, axis=-1)).imag.sum()
-            out[i] = self.factor * current
+                           * np.sum(local * ws, axis=-1)).imag
+            out[i] = self.factor * (current if one_axis else current.sum())
         return out
 
 
@@ -153,8 +155,9 @@ def moments(psi: np.ndarray, grid, V: np.ndarray, hbar: float, mass: float,
     """norm, ⟨x⟩, ⟨p⟩ and ⟨H⟩ (kinetic spectrally, potential on the grid),
     the expectation values normalised by the norm. `fft` may be a faster
     (planned) transform with numpy's convention."""
+    cell = getattr(grid, "cell", grid.dx)   # dx on a line, dx·dy in the plane
     density = psi.real ** 2 + psi.imag ** 2
-    total = float(density.sum() * grid.dx)
+    total = float(density.sum() * cell)
     if not total > 0:  # zero, or not finite
         return {"norm": total, "x_mean": 0.0, "p_mean": 0.0, "energy": 0.0}
     amplitude = fft(psi)
@@ -162,8 +165,8 @@ def moments(psi: np.ndarray, grid, V: np.ndarray, hbar: float, mass: float,
     weights_total = float(weights.sum())
     return {
         "norm": total,
-        "x_mean": _total(density, grid.x) * grid.dx / total,
+        "x_mean": _total(density, grid.x) * cell / total,
         "p_mean": hbar * _total(weights, grid.k) / weights_total,
         "energy": hbar ** 2 * _total(weights, grid.k_squared) / (2 * mass * weights_total)
-        + _total(density, V) * grid.dx / total,
+        + _total(density, V) * cell / total,
     }

@@ -10,6 +10,30 @@ from . import observables as obs
 from .fft import FFTPair
 
 
+def _runs(indices: np.ndarray) -> list:
+    """Contiguous runs of sorted indices as slices."""
+    if indices.size == 0:
+        return []
+    cuts = np.nonzero(np.diff(indices) > 1)[0] + 1
+    return [slice(int(run[0]), int(run[-1]) + 1) for run in np.split(indices, cuts)]
+
+
+def layer_blocks(W: np.ndarray, columns: slice) -> list:
+    """The absorbing cells of W (Ny, Nx) in a range of columns as rectangles
+    (…, row slice, column slice): the full-height strips of the x layers, and the
+    y layers' rows over the remaining columns — a quarter of the array, not
+    all of it, for each sample."""
+    free_row = int(np.argmin(W.sum(axis=1)))      # a row outside the y layers
+    cols = np.arange(W.shape[1])[columns]
+    strip = cols[W[free_row, cols] > 0]
+    rest = cols[W[free_row, cols] == 0]
+    out = [(Ellipsis, slice(None), c) for c in _runs(strip)]
+    if rest.size:
+        rows = np.nonzero(W[:, rest].max(axis=1) > 0)[0]
+        out += [(Ellipsis, r, c) for r in _runs(rows) for c in _runs(rest)]
+    return out
+
+
 class Sampler:
     """Collects detector flux, region probability, norm and absorption between
     recordings; called by the propagator every `sample_steps` steps.
@@ -24,22 +48,26 @@ class Sampler:
                  closing: Optional[np.ndarray] = None):
         g = setup.grid
         self.dt, self.every = setup.dt, setup.sample_steps
-        self.dx = g.dx
+        self.dx = g.cell   # the cell volume: dx on a line, dx·dy in the plane
         self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
         self._buffer_detectors = self.detectors if closing is None \
             else self.detectors.with_factor(closing)
         self.region = obs.window(g, *setup.region) if setup.region else None
         self.left = obs.window(g, g.left - g.dx, setup.reference)
         self.right = obs.window(g, setup.reference, g.right + g.dx)
-        self.layers = []
+        self.layers = []   # per side (x below / above the middle): [(index, √(2W/ħ))]
         if setup.W is not None:
             half = g.points // 2
-            for sl in (slice(0, half), slice(half, g.points)):
-                w = setup.W[sl]
-                nz = np.nonzero(w)[0]
-                if nz.size:
-                    sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
-                self.layers.append((sl, np.sqrt(2 * setup.W[sl] / setup.hbar)))
+            for sl in (slice(0, half), slice(half, g.points)):   # the halves along x
+                if np.ndim(setup.W) == 1:
+                    nz = np.nonzero(setup.W[sl])[0]
+                    if nz.size:
+                        sl = slice(sl.start + nz[0], sl.start + nz[-1] + 1)
+                    blocks = [((Ellipsis, sl), np.sqrt(2 * setup.W[sl] / setup.hbar))]
+                else:
+                    blocks = [(index, np.sqrt(2 * setup.W[index] / setup.hbar))
+                              for index in layer_blocks(setup.W, sl)]
+                self.layers.append(blocks)
         self.raw_absorbed = list(raw_absorbed)
         shape = setup.state_shape         # a planned transform for ⟨p⟩ and ⟨H⟩ over the grid's
         self._spectrum = FFTPair(shape, axes=range(len(shape) - len(g.shape), len(shape)))  # axes
@@ -62,8 +90,9 @@ class Sampler:
         self.p_region.append(obs.probability(psi, self.dx, self.region))
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
-        for side, (sl, root_rate) in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled
-            self.raw_absorbed[side] += obs.sum_abs2(root_rate * psi[..., sl]) * self.dx * self.dt \
+        for side, blocks in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled
+            self.raw_absorbed[side] += sum(obs.sum_abs2(root_rate * psi[index])
+                                           for index, root_rate in blocks) * self.dx * self.dt \
                 * self.every
         for side, value in enumerate(self.split_absorbed(total)):
             self.absorbed[side].append(value)

@@ -17,6 +17,7 @@ from ..store import RunFile
 from . import health, larmor
 from .frame import ForwardRun, predictions, snapshot_stats
 from .methods import METHODS, channel_context
+from .plane import measure_plane
 from .report import ChannelReport, DelayReport
 from .sidebands import UNDEFINED, sideband_entries
 
@@ -40,6 +41,11 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
     opened = []
     try:
         rf = _open(runfile_or_path, opened)
+        if "y" in rf.axes:   # a run in the plane: along the normal, and the lateral shift
+            if reference_run is not None:
+                raise MeasureError("a reference run is not used for a run in the plane (its "
+                                   "reference is the exact free evolution)")
+            return measure_plane(rf, measure_run)
         potential = rf.scenario().build_potential()
         run = ForwardRun.from_runfile(rf, potential)
         ref = None

@@ -103,6 +103,7 @@ class ChannelReport:
     spectrum: Optional[Spectrum] = None
     larmor: Optional[dict] = None       # a spinor run's clock (measure.larmor.larmor_entry)
     sidebands: Optional[list] = None    # a driven run's sideband rows (measure.sidebands)
+    lateral_shift: Optional[dict] = None   # in the plane: measured, predicted, deviation, error
 
     def to_dict(self, dwell: dict) -> dict:
         f = finite_or_none
@@ -123,6 +124,8 @@ class ChannelReport:
         }
         if self.larmor is not None:
             out["larmor"] = _strict(self.larmor)
+        if self.lateral_shift is not None:
+            out["lateral_shift"] = _strict(self.lateral_shift)
         return out
 
 
@@ -149,6 +152,7 @@ class DelayReport:
     warnings: list = field(default_factory=list)
     energy0: Optional[float] = None
     notes: list = field(default_factory=list)     # facts that cast no doubt (a channel not measured)
+    plane: Optional[dict] = None   # a run in the plane: angle (degrees), k_x, k_y, energy_normal
 
     def channels(self) -> list:
         return [c for c in (self.reflection, self.transmission) if c is not None]
@@ -160,4 +164,6 @@ class DelayReport:
             "transmission": self.transmission.to_dict(self.dwell) if self.transmission else None,
             "warnings": list(self.warnings),
             "notes": list(self.notes),
+            **({} if self.plane is None else
+               {"plane": {key: finite_or_none(v) for key, v in self.plane.items()}}),
         }

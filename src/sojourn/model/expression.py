@@ -1,4 +1,4 @@
-"""Safe arithmetic formulas in x (and the time t) for potential terms.
+"""Safe arithmetic formulas in x (and y, in the plane; and the time t) for potential terms.
 
 A formula is parsed with `ast` and checked against a whitelist of names,
 functions and operators; it is then evaluated by walking the checked tree with
@@ -37,7 +37,8 @@ ARITY = {name: (1, 1) for name in FUNCTIONS}
 ARITY.update({"heaviside": (1, 2), "where": (3, 3), "minimum": (2, 2), "maximum": (2, 2),
               "clip": (3, 3)})
 CONSTANTS = {"pi": np.pi, "e": np.e}
-VARIABLES = ("x", "t")   # position and time; a formula using t is a driven potential
+VARIABLES = ("x", "y", "t")   # coordinates (y only in the plane) and the time: a formula
+                              # using t is a driven potential
 BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
           ast.Div: operator.truediv, ast.Pow: operator.pow}
 UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
@@ -68,7 +69,8 @@ def _check(node: ast.AST, depth: int = 0) -> None:
     if isinstance(node, ast.Name):
         if node.id not in VARIABLES and node.id not in CONSTANTS:
             raise ExpressionError(
-                f"unknown name '{node.id}' (allowed: x, t, {', '.join(CONSTANTS)}, "
+                f"unknown name '{node.id}' (allowed: {', '.join(VARIABLES)}, "
+                f"{', '.join(CONSTANTS)}, "
                 f"and the functions {', '.join(sorted(FUNCTIONS))})")
         return
     if isinstance(node, ast.BinOp) and type(node.op) in BINARY:
@@ -143,50 +145,62 @@ def _fold(node: ast.AST):
     if isinstance(node, ast.Name) and node.id in VARIABLES or any(v is None for v in values):
         return None
     with np.errstate(all="ignore"):
-        value = np.asarray(_eval(node, np.zeros(1)), dtype=float)
+        value = np.asarray(_eval(node, {"x": np.zeros(1)}), dtype=float)
     if not np.all(np.isfinite(value)):
         raise ExpressionError(f"the part {_short(ast.unparse(node))!r} is not a finite number "
                               f"({float(value.flat[0]):g})")
     return value
 
 
-def _eval(node: ast.AST, x: np.ndarray, t=0.0):
+def _eval(node: ast.AST, env: dict):
     if isinstance(node, ast.Expression):
-        return _eval(node.body, x, t)
+        return _eval(node.body, env)
     if isinstance(node, ast.Constant):
         return np.float64(float(node.value))
     if isinstance(node, ast.Name):
-        return x if node.id == "x" else np.float64(t) if node.id == "t" else \
-            np.float64(CONSTANTS[node.id])
+        return env[node.id] if node.id in VARIABLES else np.float64(CONSTANTS[node.id])
     if isinstance(node, ast.BinOp):
-        return BINARY[type(node.op)](_eval(node.left, x, t), _eval(node.right, x, t))
+        return BINARY[type(node.op)](_eval(node.left, env), _eval(node.right, env))
     if isinstance(node, ast.UnaryOp):
-        return UNARY[type(node.op)](_eval(node.operand, x, t))
+        return UNARY[type(node.op)](_eval(node.operand, env))
     if isinstance(node, ast.Compare):
-        return COMPARE[type(node.ops[0])](_eval(node.left, x, t),
-                                          _eval(node.comparators[0], x, t))
+        return COMPARE[type(node.ops[0])](_eval(node.left, env),
+                                          _eval(node.comparators[0], env))
     if isinstance(node, ast.Call):
-        return FUNCTIONS[node.func.id](*[_eval(a, x, t) for a in node.args])
+        return FUNCTIONS[node.func.id](*[_eval(a, env) for a in node.args])
     raise ExpressionError(f"'{type(node).__name__}' is not allowed")  # unreachable after _check
+
+
+def variables(tree: ast.Expression) -> set:
+    """The names of VARIABLES a checked formula uses."""
+    return {n.id for n in ast.walk(tree) if isinstance(n, ast.Name) and n.id in VARIABLES}
 
 
 def uses_time(tree: ast.Expression) -> bool:
     """Whether a checked formula depends on the time t."""
-    return any(isinstance(node, ast.Name) and node.id == "t" for node in ast.walk(tree))
+    return "t" in variables(tree)
 
 
-def evaluate(tree: ast.Expression, x: np.ndarray, t: float = 0.0) -> np.ndarray:
-    """Values of a checked formula at the points x and the time t (float array
-    of x's shape).
+def evaluate(tree: ast.Expression, x: np.ndarray, y=None, t: float = 0.0) -> np.ndarray:
+    """Values of a checked formula at the points x (and y, broadcast with x, for
+    a formula in the plane) and the time t: a float array of the broadcast shape.
 
     Work and memory are bounded by the checks: at most MAX_NODES operations on
     arrays of x's size, and at most MAX_DEPTH of them alive at once. Values may
     be inf or nan (e.g. log(x) at x <= 0); the caller judges them."""
+    if y is None and "y" in variables(tree):
+        raise ExpressionError("the formula uses y, which only a grid in the plane has")
     x = np.array(x, dtype=float)   # a read-only copy: nothing can write into the caller's
+    env = {"x": x, "t": np.float64(t)}
+    if y is not None:
+        y = np.array(y, dtype=float)
+        x, y = (np.ascontiguousarray(a) for a in np.broadcast_arrays(x, y))
+        env = {"x": x, "y": y, "t": np.float64(t)}
+        y.flags.writeable = False
     x.flags.writeable = False
     with np.errstate(all="ignore"):
         try:
-            values = _eval(tree, x, float(t))
+            values = _eval(tree, env)
             values = np.broadcast_to(np.asarray(values, dtype=float), x.shape).copy()
         except (TypeError, ValueError, OverflowError, ZeroDivisionError) as exc:
             raise ExpressionError(f"cannot evaluate the formula ({_short(str(exc), 80)})") from None

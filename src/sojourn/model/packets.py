@@ -62,6 +62,44 @@ def on_grid(grid, info: PacketInfo) -> np.ndarray:
     return psi / math.sqrt(float(np.vecdot(psi, psi).real) * grid.dx)
 
 
+def on_plane(grid, normal: PacketInfo, transverse: PacketInfo) -> np.ndarray:
+    """ψ₀ on a grid in the plane: the product of the Gaussian along x (`normal`)
+    and along y (`transverse`), shape (Ny, Nx), normalised so that Σ|ψ|²dx dy = 1.
+    (A Gaussian whose covariance has the axes x and y separates this way.)"""
+    psi = np.multiply.outer(gaussian(grid.y, transverse.center, transverse.width, transverse.k0),
+                            gaussian(grid.x, normal.center, normal.width, normal.k0))
+    return psi / math.sqrt(float(np.vecdot(psi.reshape(-1), psi.reshape(-1)).real) * grid.cell)
+
+
+def in_plane(spec, hbar: float, mass: float, level: float = 0.0) -> tuple[PacketInfo, PacketInfo]:
+    """The (normal, transverse) PacketInfo of a packet spec in the plane: |k|
+    from the energy above `level` (V at the centre) or the wavenumber, split
+    along the direction θ (degrees from +x; 'right'/'left' are 0°/180°) into
+    k_x = |k| cos θ and k_y = |k| sin θ. The normal one carries the energy of
+    the motion along x, E_x = ħ²k_x²/2m + level, what a potential of x alone sees."""
+    if spec.wavenumber is not None:
+        k = abs(spec.wavenumber)
+    else:
+        kinetic = spec.energy - level
+        if kinetic <= 0:
+            raise ValueError(f"packet energy {spec.energy} is not above the potential "
+                             f"{level} at the packet's centre")
+        k = math.sqrt(2 * mass * kinetic) / hbar
+    angle = {"right": 0.0, "left": 180.0}.get(spec.direction, spec.direction)
+    theta = math.radians(float(angle))
+    widths = spec.width if isinstance(spec.width, tuple) else (spec.width, spec.width)
+    parts = []
+    for center, width, k_axis, lev in ((spec.center[0], widths[0], k * math.cos(theta), level),
+                                       (spec.center[1], widths[1], k * math.sin(theta), 0.0)):
+        sigma_k = 1 / (2 * width)
+        c = hbar ** 2 / (2 * mass)
+        parts.append(PacketInfo(center=float(center), width=float(width), k0=k_axis,
+                                sigma_k=sigma_k, energy=c * k_axis ** 2 + lev,
+                                mean_energy=c * (k_axis ** 2 + sigma_k ** 2) + lev,
+                                group_velocity=hbar * k_axis / mass, level=lev))
+    return parts[0], parts[1]
+
+
 def free_width(width: float, t, hbar: float, mass: float):
     """rms width of a free Gaussian at time t: σ√(1 + (ħt/2mσ²)²)."""
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):   # extremes: inf

@@ -14,19 +14,20 @@ from typing import Optional
 import numpy as np
 
 from .sampled import Expression, Table
+from .shapes import Disk, Rectangle, Ring, Wall
 from .terms import (TAIL, Barrier, DeltaLike, Drive, Gaussian, Harmonic, Ramp, Sech2, Shape,
                     SmoothStep, Step, Term, Well)
 
 __all__ = ["TERMS", "Potential", "Shape", "Term", "Drive", "TAIL", "Step", "Barrier", "Well",
-           "Ramp",
-           "DeltaLike", "Gaussian", "SmoothStep", "Sech2", "Harmonic", "Table", "Expression"]
+           "Ramp", "DeltaLike", "Gaussian", "SmoothStep", "Sech2", "Harmonic", "Table",
+           "Expression", "Disk", "Ring", "Rectangle", "Wall"]
 
 CHUNK = 1 << 18   # points evaluated at a time (a formula holds ~depth arrays of this size)
 
 TERMS: dict[str, type[Term]] = {
     cls.kind: cls
     for cls in (Step, Barrier, Well, Gaussian, SmoothStep, Sech2, DeltaLike, Ramp,
-                Harmonic, Table, Expression)
+                Harmonic, Table, Expression, Disk, Ring, Rectangle, Wall)
 }
 
 
@@ -66,6 +67,13 @@ class Potential:
             for term in self.terms:
                 out[start:start + CHUNK] += value(term, part)
         return total
+
+    @property
+    def along_x(self) -> bool:
+        """True when V depends on x alone (no shape of the plane, no formula in y):
+        in the plane the problem then separates and the line's theory applies."""
+        return not any(getattr(t, "planar", False) or getattr(t, "axis", "x") != "x"
+                       for t in self.terms)
 
     @property
     def confining(self) -> bool:

@@ -184,13 +184,22 @@ class Expression(Term):
 
     def at_time(self, x, t: float) -> np.ndarray:
         """Values at points x and time t."""
-        return _expr.evaluate(self._tree, x, t)
+        return _expr.evaluate(self._tree, x, t=t)
+
+    @property
+    def planar(self) -> bool:
+        """True for a formula in y: it depends on more than the normal x."""
+        return "y" in _expr.variables(self._tree)
+
+    def plane(self, x, y, mass=1.0):
+        """Values at points (x, y) of the plane (broadcast)."""
+        return _expr.evaluate(self._tree, x, y)
 
     def support(self):
         return None  # needs a span: see shape_on
 
     def shape_on(self, span, spacing, mass=1.0) -> Shape:
-        if not all(math.isfinite(v) for v in span):
+        if self.planar or not all(math.isfinite(v) for v in span):
             return Shape((0.0, 0.0), None, [], [])
         samples = int(min(max(math.ceil((span[1] - span[0]) / spacing) + 1, MIN_SAMPLES),
                           MAX_SAMPLES))

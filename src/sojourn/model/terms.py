@@ -10,6 +10,8 @@ import math
 from typing import ClassVar, NamedTuple, Optional
 
 import numpy as np
+from typing import Literal
+
 from pydantic import BaseModel, ConfigDict, Field, ValidationInfo, field_validator
 
 class Shape(NamedTuple):
@@ -75,6 +77,11 @@ class Term(BaseModel):
     7. Every term accepts an optional ``drive`` (`Drive`): V₁·cos(ωt + φ) over
        ``drive_support()`` (default: its support, the whole line if unbounded;
        a step drives its high side, a barrier or well its interval).
+    8. In the plane, a term of x alone acts along x (broadcast over y), or
+       along y with ``axis: y`` (its x read as y; a line refuses it). A
+       term of the plane sets ``planar`` True and provides ``plane(x, y, mass)``
+       (values at points of the plane, broadcast) and ``bounds()``; a scenario
+       on a line refuses it (`shapes`). Drives run on a line only.
     Nothing else changes when a term is added: the scenario schema, the error
     messages, build and the theory read all of this through `Potential`.
     """
@@ -84,6 +91,8 @@ class Term(BaseModel):
     piecewise_constant: ClassVar[bool] = False
     confining: ClassVar[bool] = False
     drive: Optional[Drive] = None
+    planar: ClassVar[bool] = False
+    axis: Literal["x", "y"] = "x"   # in the plane: the coordinate the term depends on
 
     def point(self, x, mass: float = 1.0) -> np.ndarray:
         raise NotImplementedError
@@ -124,8 +133,9 @@ class Term(BaseModel):
         return Shape(self.levels(mass), self.support(), self.breakpoints(), self.jumps())
 
     def describe(self) -> str:
-        fields = ", ".join(f"{k}={v}" for k, v in self.model_dump().items()
-                           if not (k == "drive" and v is None))
+        hidden = ({"axis"} if self.axis == "x" else set()) | ({"drive"} if self.drive is None
+                                                               else set())
+        fields = ", ".join(f"{k}={v}" for k, v in self.model_dump(exclude=hidden).items())
         return f"{self.kind}({fields})"
 
 

@@ -11,6 +11,7 @@ from .overlays import (centroid_delay, direction, phase_delay, energy_spectrum, 
                        reference_trajectory, side_centroid, turning_time)
 from .spin import SpinSummed, clock_panels, spin_summed
 from .styles import LOOKS, STYLES, Look
+from .plane import PlaneOptions, is_plane_run, render_plane_figure, render_plane_movie
 
 __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "LOOKS", "Look", "MovieOptions",
            "FigureOptions", "RunFacts", "parse_size", "parse_xlim", "parse_curves",
@@ -18,4 +19,5 @@ __all__ = ["CURVES", "DEFAULT_CURVES", "STYLES", "LOOKS", "Look", "MovieOptions"
            "centroid_delay", "turning_time", "side_centroid", "energy_spectrum",
            "render_movie", "render_figure", "figure", "space_time", "outgoing_trajectory",
            "phase_delay", "MovieFrame", "Scan", "scan_run", "Ruler", "reflection_ruler", "run_facts", "open_encoder",
-           "SpinSummed", "spin_summed", "clock_panels"]
+           "SpinSummed", "spin_summed", "clock_panels",
+           "PlaneOptions", "is_plane_run", "render_plane_movie", "render_plane_figure"]

@@ -12,8 +12,9 @@ import numpy as np
 STRUCTURED = ("units", "packet", "provenance")   # groups of attributes (JSON text before 3)
 # dataset (by its name in a group) -> (long_name, unit kind; see `udunits`)
 LABELS = {
-    "x": ("position", "length"), "t": ("time", "time"),
-    "component": ("spinor component (0: spin up along z, 1: spin down)", "1"), "step": ("time step number", "1"),
+    "x": ("position", "length"), "y": ("position along y", "length"), "t": ("time", "time"),
+    "component": ("spinor component (0: spin up along z, 1: spin down)", "1"),
+    "step": ("time step number", "1"),
     "V": ("potential energy", "energy"), "absorber": ("absorbing potential (−i W)", "energy"),
     "psi": ("wave function", "psi"), "norm": ("total probability", "1"),
     "x_mean": ("mean position", "length"), "p_mean": ("mean momentum", "momentum"),

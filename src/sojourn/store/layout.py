@@ -9,7 +9,8 @@ every reader checks on open (README.md describes it for people).
     /grid/x            (N,) float, strictly increasing
     /potential/x, V    (N,) float, V on ψ's axes (below); /potential/absorber (N,) float
                        when there is one
-    /snapshots/x, t, step, psi  (N,), (S,), (S,), (S, *A) complex — S rows allocated at the
+    /snapshots/x, t, step, psi  (N,), (S,), (S,), (S, *A) complex (single with record.precision:
+                       single, root attr "snapshot_precision") — S rows allocated at the
                        start; attrs "committed": how many rows hold committed snapshots, and
                        "axes": ψ's axes after t, space-separated names, outermost first
                        ("x"; "component x" for a spinor); each is a scale in /snapshots and
@@ -114,6 +115,8 @@ def root_attributes(setup, backend: str) -> dict:
         "sample_steps": int(setup.sample_steps), "scheme": sc.evolve.scheme,
         "precision": sc.evolve.precision, "hbar": float(setup.hbar), "mass": float(sc.mass),
         "mass_internal": float(setup.mass), "reference": float(setup.reference), "packet": json.dumps(setup.packet.__dict__),
+        # snapshots stored below the state's precision (record.precision): said only then
+        **({"snapshot_precision": "single"} if snapshot_dtype(setup) != psi_dtype(setup) else {}),
     }
 
 
@@ -124,8 +127,21 @@ def state_datasets(axes: tuple[str, ...]) -> dict:
             **{f"checkpoint/{slot}/psi": ("c", symbols) for slot in SLOTS}}
 
 
+def grid_symbols(axes: tuple[str, ...]) -> tuple[str, ...]:
+    """The symbols of the grid's own axes among ψ's (a component axis is not one):
+    ("N",) on a line, ("y", "N") in the plane."""
+    return ("y", "N") if "y" in axes else ("N",)
+
+
 def psi_dtype(setup) -> str:
+    """The state's type (the run computes and checkpoints in it)."""
     return "c8" if setup.scenario.evolve.precision == "single" else "c16"
+
+
+def snapshot_dtype(setup) -> str:
+    """The snapshots' type: single where evolve or record asks for it."""
+    single = "single" in (setup.scenario.evolve.precision, setup.scenario.record.precision)
+    return "c8" if single else "c16"
 
 
 def _early() -> h5py.h5p.PropDCID:
@@ -155,7 +171,8 @@ def allocated_bytes(setup, compress: bool) -> int:
     n, rows, item = setup.grid.points, setup.snapshots, np.dtype(psi_dtype(setup)).itemsize
     state = int(np.prod(setup.state_shape))
     columns = len(SAMPLES) + 1 + max(len(setup.detectors), 1)
-    return ((0 if compress else rows * state * item) + rows * (len(OBSERVABLES) + 3) * 8
+    row_item = np.dtype(snapshot_dtype(setup)).itemsize
+    return ((0 if compress else rows * state * row_item) + rows * (len(OBSERVABLES) + 3) * 8
             + sample_rows(setup) * columns * 8 + 3 * n * 8 + state * 8 + 2 * state * item)
 
 
@@ -186,7 +203,7 @@ def create(f: h5py.File, setup, backend: str, compress: bool) -> None:
     _attach(_rows(snaps, "step", rows, dtype="i8"), u, t)
     psi = snaps.create_dataset(
         "psi", shape=(rows, *state), maxshape=(None, *state), chunks=(1, *state),
-        dtype=psi_dtype(setup), fletcher32=True, dcpl=_early(),
+        dtype=snapshot_dtype(setup), fletcher32=True, dcpl=_early(),
         **({"compression": "gzip", "compression_opts": 1, "shuffle": True} if compress else {}))
     _attach(psi, u, t, *saxes)
     snaps.attrs["committed"] = np.int64(0)
@@ -334,7 +351,7 @@ def validate(f: h5py.File, path, version: int = FORMAT_VERSION) -> Committed:
     sizes: dict = {}
     axes = state_axes(f, path, version)
     wanted = {**_datasets(version), **state_datasets(axes),
-              **{k: v for k, v in OPTIONAL.items() if k in f}}
+              **{k: (v[0], grid_symbols(axes)) for k, v in OPTIONAL.items() if k in f}}
     if version < 2:   # version 1 grew ψ's rows as it went and had one checkpoint state
         wanted = {k: v for k, v in wanted.items() if not k.startswith("checkpoint/")}
         wanted["snapshots/psi"] = ("c", ("P", "N"))

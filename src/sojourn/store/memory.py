@@ -30,8 +30,11 @@ class MemoryRun(RunReader):
         self._x = np.array(setup.grid.x, dtype=float)
         self._V = np.array(setup.V, dtype=float)
         self._axes = tuple(name for name, _ in setup.state_axes)
+        self._coordinates = {name: np.array(values, dtype=float)
+                             for name, values in setup.state_axes}
         self._W = None if setup.W is None else np.array(setup.W, dtype=float)
-        self._dtype = np.dtype(layout.psi_dtype(setup))
+        self._dtype = np.dtype(layout.snapshot_dtype(setup))
+        self._state_dtype = np.dtype(layout.psi_dtype(setup))
         self._region = tuple(map(float, setup.region)) if setup.region else None
         self._detectors = np.array(setup.detectors, dtype=float)
         self._columns = max(len(setup.detectors), 1)
@@ -53,7 +56,9 @@ class MemoryRun(RunReader):
         for name in OBSERVABLES:
             self._obs[name].append(float(observables[name]))
         self._keep_samples(samples)
-        self.resume_state = {"step": int(step), "t": float(t), "psi": self._psi[-1],
+        kept = self._psi[-1] if self._dtype == self._state_dtype else \
+            np.array(psi, dtype=self._state_dtype, copy=True)
+        self.resume_state = {"step": int(step), "t": float(t), "psi": kept,
                              "raw_absorbed": tuple(map(float, raw_absorbed))}
 
     def checkpoint(self, step: int, t: float, psi: np.ndarray, samples: dict,
@@ -100,6 +105,11 @@ class MemoryRun(RunReader):
     @property
     def axes(self) -> tuple[str, ...]:
         return self._axes
+
+    def coordinate(self, name: str) -> np.ndarray:
+        if name == "x" or name not in self._coordinates:
+            return super().coordinate(name)
+        return self._coordinates[name].copy()
 
     @property
     def absorber(self) -> Optional[np.ndarray]:

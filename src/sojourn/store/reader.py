@@ -9,7 +9,10 @@ store.memory.MemoryRun are the two):
    text; `status` — running, interrupted, failed or complete.
 2. `x`, `V` — the grid (N,) and the potential on ψ's axes (N,) — (C, N) for a
    spinor, one potential per component; `absorber` — (N,) or None; `axes` — the
-   names of ψ's axes after t, outermost first, x last (("x",) for a scalar run).
+   names of ψ's axes after t, outermost first, x last (("x",) for a scalar run;
+   ("y", "x") in the plane: ψ, V and the absorber (Ny, Nx)); `coordinate(name)` —
+   the values of one of those axes (the base gives x; a backend with more axes
+   gives them all).
 3. `len(reader)` — the committed snapshots; `times` — their (len,) times;
    `psi(i)` — snapshot i as a complex array on ψ's axes (`axes`; (N,) for a scalar
    run in one dimension; negative i counts from the end);
@@ -103,6 +106,12 @@ class RunReader(ABC):
     @property
     def axes(self) -> tuple[str, ...]:
         return ("x",)
+
+    def coordinate(self, name: str) -> np.ndarray:
+        """The values along one of ψ's axes (`axes`)."""
+        if name == "x":
+            return self.x
+        raise KeyError(f"{self.path}: ψ has no axis {name!r} (its axes: {' '.join(self.axes)})")
 
     @property
     def units(self) -> dict:
@@ -249,6 +258,11 @@ class RunFile(RunReader):
     @property
     def axes(self) -> tuple[str, ...]:
         return layout.state_axes(self.h5, self.path, int(self.attrs["format_version"]))
+
+    def coordinate(self, name: str) -> np.ndarray:
+        if name == "x" or name not in self.axes:
+            return super().coordinate(name)
+        return self._read(f"snapshots/{name}")
 
     @property
     def V(self) -> np.ndarray:

@@ -88,7 +88,8 @@ def _report_values(report, path: Path, scenario) -> dict:
         obs = rf.observables()
     left = float(obs["P_left"][-1] + obs["absorbed_left"][-1])
     right = float(obs["P_right"][-1] + obs["absorbed_right"][-1])
-    forward = scenario.packet.direction == "right"
+    plane = getattr(report, "plane", None)   # in the plane: the sign of k_x
+    forward = plane["k_x"] >= 0 if plane else scenario.packet.direction == "right"
     out = {"R": report.reflection.probability if report.reflection else (left if forward else right),
            "T": report.transmission.probability if report.transmission else (
                right if forward else left)}

@@ -296,8 +296,8 @@ def _label(value) -> str:
 def _theory_curve(scenario, channel: str, energies):
     """(E, τ(E)) of the stationary theory over the range of the swept energies."""
     finite = energies[np.isfinite(energies)]
-    if finite.size < 1 or scenario is None:
-        return None
+    if finite.size < 1 or scenario is None or scenario.dimensions == 2:
+        return None   # in the plane the swept energy is not the normal one: no line curve
     E = np.linspace(float(finite.min()), float(finite.max()), 400)
     try:
         sc = scatter(scenario.build_potential(), E, hbar=scenario.hbar, dwell=False,

@@ -10,7 +10,7 @@ import numpy as np
 from ..build import default_region
 from ..errors import TheoryError
 from ..model.grid import Grid
-from ..model.packets import PacketInfo, describe
+from ..model.packets import PacketInfo, describe, in_plane
 from ..model.potentials import Potential
 from .averages import packet_prediction
 from .floquet import buttiker_landauer_time, driven_layers, sideband_asymmetry
@@ -36,20 +36,30 @@ class TheoryInputs(NamedTuple):
 def scenario_inputs(scenario) -> TheoryInputs:
     """The potential, the packet as the run describes it (k₀ from V at the
     packet's centre), ħ, m, ``measure.reference`` and the dwell region by the
-    run's own rule (``measure.region``, else `build.default_region`)."""
+    run's own rule (``measure.region``, else `build.default_region`). In the
+    plane: the theory of the motion along x (the packet at k_x), for a
+    potential of x alone (PHYSICS §9)."""
     potential = scenario.build_potential()
+    plane = scenario.dimensions == 2
+    if plane and not potential.along_x:
+        raise TheoryError("the potential has a shape of the plane (or a formula in y): the "
+                          "stationary theory here is that of potentials of x alone")
     check_scattering(potential)
     hbar, mass = scenario.hbar, scenario.particle_mass
-    level = float(potential(np.array([scenario.packet.center]))[0])
+    center = scenario.packet.center[0] if plane else scenario.packet.center
+    level = float(potential(np.array([center]))[0])
     try:
-        packet = describe(scenario.packet, hbar, mass, level)
+        packet = in_plane(scenario.packet, hbar, mass, level)[0] if plane else \
+            describe(scenario.packet, hbar, mass, level)
     except ValueError as exc:
         raise TheoryError(f"packet.energy: {exc}") from None
     if scenario.measure.region is not None:
         region = tuple(float(v) for v in scenario.measure.region)
     else:
         width = scenario.absorber.width if scenario.absorber is not None else 0.0
-        region = default_region(potential, Grid.from_spec(scenario.grid), width, packet)
+        grid = Grid(*scenario.grid.x_span, scenario.grid.x_points) if plane else \
+            Grid.from_spec(scenario.grid)
+        region = default_region(potential, grid, width, packet)
     return TheoryInputs(potential, packet, hbar, mass, scenario.measure.reference, region)
 
 
