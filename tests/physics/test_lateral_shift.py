@@ -87,8 +87,8 @@ def test_a_packet_along_the_normal_has_no_lateral_shift():
     """θ = 0: the mirror image and the reflected packet share one line (D = 0)."""
     scenario = with_changes(_cheap_oblique(), {"packet.direction": 0.0,
                                                "packet.center": [-50.0, 0.0],
-                                               "grid.span": [[-194.1, 21.9], [-66.0, 66.0]],
-                                               "grid.points": [360, 88]})
+                                               "grid.span": [[-194.1, 21.9], [-99.0, 99.0]],
+                                               "grid.points": [360, 132]})
     report = measure_delays(run_in_memory(build(scenario)))
     assert abs(report.reflection.lateral_shift["measured"]) < 1e-6
     assert np.isclose(report.plane["angle"], 0.0)
