@@ -124,3 +124,12 @@ def test_both_channels_of_an_oblique_barrier_shift_as_predicted():
         assert abs(relative) < 2.5e-2, channel.channel
         assert relative == pytest.approx(channel.measured["centroid"].relative, abs=3e-3)
         assert shift["spread"] < 1e-6 * abs(shift["measured"])   # D is constant in time
+
+
+@pytest.mark.slow
+def test_shipped_oblique_step_shifts_within_1e_2_of_its_prediction():
+    """configs/oblique_step.yaml on its own grid (Δx = 0.3): measured 3.2e-3."""
+    report = measure_delays(run_in_memory(build(load(ROOT / "configs" / "oblique_step.yaml"))))
+    assert report.warnings == []
+    shift = report.reflection.lateral_shift
+    assert shift["measured"] == pytest.approx(shift["predicted"], rel=1e-2)
