@@ -133,3 +133,17 @@ def test_shipped_oblique_step_shifts_within_1e_2_of_its_prediction():
     assert report.warnings == []
     shift = report.reflection.lateral_shift
     assert shift["measured"] == pytest.approx(shift["predicted"], rel=1e-2)
+
+
+def test_theory_of_a_scenario_in_the_plane_gives_the_shift():
+    """`sojourn theory` in the plane: the line's table at k_x and the lateral shift,
+    stationary 2 tan θ/κ at k₀ (as above) beside its packet average."""
+    from sojourn.theory.tables import theory_table
+    table = theory_table(load(ROOT / "configs" / "oblique_step.yaml"))
+    kx = math.cos(math.radians(30.0))
+    assert table["plane"]["k_x"] == pytest.approx(kx, rel=1e-12)
+    shift = table["plane"]["lateral_shift"]["reflection"]
+    assert shift["stationary"] == pytest.approx(2 * math.tan(math.radians(30.0))
+                                                / math.sqrt(2 - kx ** 2), rel=1e-9)
+    assert shift["packet"] == pytest.approx(shift["stationary"], rel=1e-2)
+    assert table["plane"]["lateral_shift"]["transmission"] is None
