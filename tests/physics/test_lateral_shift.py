@@ -87,8 +87,8 @@ def test_a_packet_along_the_normal_has_no_lateral_shift():
     """θ = 0: the mirror image and the reflected packet share one line (D = 0)."""
     scenario = with_changes(_cheap_oblique(), {"packet.direction": 0.0,
                                                "packet.center": [-50.0, 0.0],
-                                               "grid.span": [[-194.1, 21.9], [-66.0, 66.0]],
-                                               "grid.points": [360, 88]})
+                                               "grid.span": [[-194.1, 21.9], [-99.0, 99.0]],
+                                               "grid.points": [360, 132]})
     report = measure_delays(run_in_memory(build(scenario)))
     assert abs(report.reflection.lateral_shift["measured"]) < 1e-6
     assert np.isclose(report.plane["angle"], 0.0)
@@ -124,3 +124,26 @@ def test_both_channels_of_an_oblique_barrier_shift_as_predicted():
         assert abs(relative) < 2.5e-2, channel.channel
         assert relative == pytest.approx(channel.measured["centroid"].relative, abs=3e-3)
         assert shift["spread"] < 1e-6 * abs(shift["measured"])   # D is constant in time
+
+
+@pytest.mark.slow
+def test_shipped_oblique_step_shifts_within_1e_2_of_its_prediction():
+    """configs/oblique_step.yaml on its own grid (Δx = 0.3): measured 3.2e-3."""
+    report = measure_delays(run_in_memory(build(load(ROOT / "configs" / "oblique_step.yaml"))))
+    assert report.warnings == []
+    shift = report.reflection.lateral_shift
+    assert shift["measured"] == pytest.approx(shift["predicted"], rel=1e-2)
+
+
+def test_theory_of_a_scenario_in_the_plane_gives_the_shift():
+    """`sojourn theory` in the plane: the line's table at k_x and the lateral shift,
+    stationary 2 tan θ/κ at k₀ (as above) beside its packet average."""
+    from sojourn.theory.tables import theory_table
+    table = theory_table(load(ROOT / "configs" / "oblique_step.yaml"))
+    kx = math.cos(math.radians(30.0))
+    assert table["plane"]["k_x"] == pytest.approx(kx, rel=1e-12)
+    shift = table["plane"]["lateral_shift"]["reflection"]
+    assert shift["stationary"] == pytest.approx(2 * math.tan(math.radians(30.0))
+                                                / math.sqrt(2 - kx ** 2), rel=1e-9)
+    assert shift["packet"] == pytest.approx(shift["stationary"], rel=1e-2)
+    assert table["plane"]["lateral_shift"]["transmission"] is None

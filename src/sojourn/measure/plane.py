@@ -29,7 +29,7 @@ import numpy as np
 
 from ..errors import MeasureError
 from ..model import packets
-from ..theory.scattering import scatter
+from ..theory.oblique import mean_wavenumber
 from .frame import ForwardRun, predictions, separated, snapshot_stats
 from .report import DelayReport
 
@@ -80,19 +80,6 @@ def normal_run(rf, potential, transverse: packets.PacketInfo) -> ForwardRun:
         observables=observables, packet=packets.PacketInfo(**rf.packet), hbar=hbar, mass=mass,
         dt=attrs["dt"], reference=rf.reference, region=rf.region, support=potential.support(),
         levels=potential.levels(), states=Projected(rf, transverse, hbar, mass))
-
-
-def mean_normal_wavenumber(potential, info: packets.PacketInfo, hbar: float, mass: float,
-                           reference: float, channel: str = "reflection") -> float:
-    """⟨k_x⟩ over |ψ̃₀(k_x)|²R(k_x) (T(k_x) for transmission; the band k₀ ± 8σ_k,
-    trapezoid on 1601 points): the filtered reference moves at ħ⟨k_x⟩/m."""
-    k0, sk = abs(info.k0), info.sigma_k
-    k = np.linspace(max(k0 - 8 * sk, k0 / 100), k0 + 8 * sk, 1601)
-    sc = scatter(potential, info.level + (hbar * k) ** 2 / (2 * mass), hbar=hbar,
-                 x_r=reference, direction="right" if info.k0 > 0 else "left", dwell=False)
-    share = sc.R if channel == "reflection" else sc.T
-    w = np.exp(-0.5 * ((k - k0) / sk) ** 2) * np.nan_to_num(np.asarray(share, float))
-    return float(np.trapezoid(w * k, k) / np.trapezoid(w, k))
 
 
 def lateral_shift(rf, run: ForwardRun, transverse: packets.PacketInfo, stats: dict,
@@ -201,8 +188,8 @@ def _shift_entry(rf, run, transverse, normal, prediction, potential, report,
                           channel)
     values = found["values"]
     shift = None if predicted_channel is None else predicted_channel.centroid_shift
-    k_mean = mean_normal_wavenumber(potential, normal, run.hbar, run.mass, rf.reference,
-                                    channel) if predicted_channel is not None else abs(normal.k0)
+    k_mean = mean_wavenumber(potential, normal, run.hbar, run.mass, rf.reference,
+                             channel) if predicted_channel is not None else abs(normal.k0)
     predicted = None if shift is None else \
         transverse.group_velocity / (hbar_over_m(rf) * k_mean) * shift
     wigner = None if predicted_channel is None else predicted_channel.wigner_delay

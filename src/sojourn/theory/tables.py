@@ -15,6 +15,7 @@ from ..model.potentials import Potential
 from .averages import packet_prediction
 from .floquet import buttiker_landauer_time, driven_layers, sideband_asymmetry
 from .floquet_averages import packet_sidebands
+from .oblique import lateral_shifts
 from .larmor import larmor_times, packet_larmor
 from .layers import check_scattering
 from .scattering import scatter
@@ -148,6 +149,15 @@ def theory_table(scenario, energies=None, *, packet: bool = True) -> dict:
             "energy": _clean(info.level + (inputs.hbar * k) ** 2 / (2 * inputs.mass)),
             "weight_dk": _clean(np.exp(-0.5 * ((k - pred.k0) / pred.sigma_k) ** 2)),
         }
+        if scenario.dimensions == 2:   # the energies above are the motion along x, E_x
+            k_y = in_plane(scenario.packet, inputs.hbar, inputs.mass, info.level)[1].k0
+            shifts = lateral_shifts(pot, info, k_y, inputs.hbar, inputs.mass, inputs.reference,
+                                    pred)
+            table["plane"] = {
+                "angle": math.degrees(math.atan2(k_y, info.k0)), "k_x": info.k0, "k_y": k_y,
+                "lateral_shift": {c: None if v is None else {key: _clean([x])[0]
+                                                             for key, x in v.items()}
+                                  for c, v in shifts.items()}}
     return table
 
 
@@ -267,6 +277,14 @@ def format_table(table: dict) -> str:
                             f"spectral = {fmt(ch['spectral_delay'])}  Wigner(E0) = "
                             f"{fmt(ch['wigner_delay'])} {u['time']}")
         text.append(f"  dwell (packet) = {fmt(pk['dwell'])} {u['time']}")
+        plane = table.get("plane")
+        if plane:
+            text.append(f"  in the plane at {plane['angle']:.4g} deg: the energies are those of the "
+                        f"motion along x (k_x = {plane['k_x']:.6g}, k_y = {plane['k_y']:.6g})")
+            for name, shift in plane["lateral_shift"].items():
+                if shift:
+                    text.append(f"  {name:12s} lateral shift D = {fmt(shift['packet'])} (packet), "
+                                f"{fmt(shift['stationary'])} (stationary, k0) {u['length']}")
         for w in pk["warnings"]:
             text.append(f"  warning: {w}")
     lp = table.get("larmor_packet")
