@@ -16,8 +16,9 @@ from .model.absorber import absorber_profile, default_absorber_strength
 from .config.scenario import Scenario
 from .errors import ScenarioError, SojournError
 from .theory.scattering import scatter
-from .guards import (DEFAULT_DT_PHASE, Finding, guard, refuse_endless, refuse_oversized,
-                     time_step_limit)
+from .guards import Finding, guard, refuse_endless, refuse_oversized, time_step_limit
+from .timestep import band_energy_range, choose as choose_dt, flux_band
+from .engine.propagate import ORDER
 
 
 @dataclass
@@ -39,6 +40,13 @@ class Setup:
     reference: float
     region: Optional[tuple[float, float]]
     findings: list = field(default_factory=list)
+    flux_band: Optional[tuple[float, float]] = None   # (k_pass, k_stop) of the detectors' filter
+    dt_error: float = 0.0     # a chosen Δt's estimated relative delay bias (timestep.choose)
+
+    @property
+    def band_phase(self) -> float:
+        """Δt·(E_top + ΔV)/ħ over the populated band: must stay below 2π."""
+        return self.dt * band_energy_range(self.packet, self.V, self.hbar, self.mass) / self.hbar
 
     @property
     def hbar(self) -> float:
@@ -330,9 +338,12 @@ def _build(scenario: Scenario) -> Setup:
         raise ScenarioError(f"{scenario.source}: grid.points: the grid's largest kinetic "
                             f"energy ħ²k_max²/2m = {kinetic_max:g} plus the range of V "
                             f"({v_range:g}) is not a usable number; check mass, grid and potential")
-    limit = time_step_limit(kinetic_max, v_range, hbar)
+    limit = time_step_limit(band_energy_range(info, V, hbar, mass), 0.0, hbar)
+    dt_error = 0.0
     if scenario.evolve.dt is None:
-        dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
+        dt, dt_error = choose_dt(grid, info, V, None if potential.confining
+                                 else potential.support(), hbar, mass,
+                                 order=ORDER[scenario.evolve.scheme])
         dt_chosen = True
     else:
         dt, dt_chosen = scenario.evolve.dt, False
@@ -385,7 +396,8 @@ def _build(scenario: Scenario) -> Setup:
         potential, grid, absorber_width, info)
 
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
-                  sample_steps, detectors, reference, region, findings)
+                  sample_steps, detectors, reference, region, findings,
+                  flux_band(grid, info, V, hbar, mass, dt), dt_error)
     guard(setup, limit, absorber_width)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)

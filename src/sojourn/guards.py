@@ -20,6 +20,7 @@ from .theory.scattering import scatter
 from .engine.propagate import Propagator
 from .model.grid import Grid
 from .store import layout
+from . import timestep
 from .store.paths import output_path
 
 # A run's peak memory, fitted to peaks measured with `python -m sojourn run` at
@@ -33,14 +34,14 @@ ROW_OVERHEAD = 96          # per ψ row: its chunk's index entry and checksum (m
 MAX_RUN_SECONDS = 30 * 86400   # a longer estimated run is refused without --force
 CALIBRATION = {"points": 4096, "steps": 300}
 RESOLUTION_MARGIN = 2.0   # k_max ≥ margin·(|k₀| + 6σ_k)  (common practice, no source)
-DEFAULT_DT_PHASE = math.pi / 2  # default Δt·(E_max + ΔV)/ħ, well inside the limit of 2π
 RENDERING_WARN = 1e-3     # the relative change of R, T or a delay a resolved run aims at
 RENDERING_WARN_LEVEL = 1e-2  # ... and the one that calls for a warning
 MAX_RENDERED_CELLS = 20000  # larger supports are not re-solved cell by cell
 
 
 def time_step_limit(kinetic_max: float, v_range: float, hbar: float) -> float:
-    """Largest Δt with Δt·(E_max + V_max - V_min)/ħ < 2π (PHYSICS §3)."""
+    """Largest Δt with Δt·(E + V_max - V_min)/ħ < 2π (PHYSICS §3): E the grid's
+    E_max for the grid limit, the populated band's E_top for the hard limit."""
     return 2 * math.pi * hbar / (kinetic_max + v_range)
 
 
@@ -164,20 +165,7 @@ def guard(s, limit: float, absorber_width: float) -> None:
                     f"k₀/σ_k = {info.k_ratio:.3g} < 6: the packet has content near k = 0, where "
                     "delays diverge; make the packet wider or faster"))
 
-    # the time step against the grid limit
-    phase = s.grid_phase
-    if s.dt_chosen:
-        add(Finding("info", "evolve.dt", f"no dt given: using dt = {s.dt:.4g} {units.time} "
-                    f"(Δt·(E_max+ΔV)/ħ = {phase:.3g}, limit 2π)"))
-    if phase >= 2 * math.pi:
-        add(Finding("error", "evolve.dt",
-                    f"dt = {s.dt:g} is past the grid limit Δt·(E_max + V_max − V_min)/ħ < 2π "
-                    f"(here {phase:.3g}); the largest allowed is {limit:.4g} {units.time}, "
-                    f"and {limit / 2:.4g} is safe", forceable=True))
-    elif phase > math.pi:
-        add(Finding("warning", "evolve.dt",
-                    f"Δt·(E_max + ΔV)/ħ = {phase:.3g} is above π: sharp features may feed "
-                    f"spurious high-k components; dt ≤ {limit / 2:.4g} is safe"))
+    _time_step(s, limit, add)
 
     # the packet inside the box, clear of absorbers and the potential
     inner = (grid.left + absorber_width, grid.right - absorber_width)
@@ -257,6 +245,51 @@ def guard(s, limit: float, absorber_width: float) -> None:
     s.findings.append(Finding("info", "", f"estimated memory {_size(memory)}, run file "
                                           f"{at_most}{_size(disk)} ({s.snapshots} snapshots), "
                                           f"run time {_duration(seconds)} here"))
+
+
+def _time_step(s, limit: float, add) -> None:
+    """The time step against the packet's band (a hard limit: 2π over the band)
+    and, past the grid limit, against the bias the sidebands it opens at sharp
+    features cause (PHYSICS §3, "Time step and the populated band")."""
+    phase, band_phase, units = s.grid_phase, s.band_phase, s.scenario.unit_system
+    safe, _ = timestep.choose(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass)
+    if s.dt_chosen:
+        bias = f", estimated bias ≤ {s.dt_error:.1e}" if s.dt_error else ""
+        add(Finding("info", "evolve.dt",
+                    f"no dt given: using dt = {s.dt:.4g} {units.time} (Δt·(E_top+ΔV)/ħ = "
+                    f"{band_phase:.3g} over the packet's band, limit 2π; Δt·(E_max+ΔV)/ħ = "
+                    f"{phase:.3g} on the grid{bias})"))
+    if band_phase >= 2 * math.pi:
+        add(Finding("error", "evolve.dt",
+                    f"dt = {s.dt:g} aliases the packet's own band: Δt·(E_top + V_max − V_min)/ħ "
+                    f"= {band_phase:.3g} ≥ 2π (E_top the kinetic energy at |k₀| + 8σ_k); the "
+                    f"largest allowed is {limit:.4g} {units.time}, and {safe:.4g} is safe",
+                    forceable=True))
+        return
+    if phase <= math.pi:
+        return
+    bias = timestep.bias(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass, s.dt)
+    h = math.sqrt(bias / timestep.LEAK_COEFFICIENT) * s.hbar / s.dt   # the sharpness it saw
+    grid_limit = time_step_limit(s.grid.kinetic_max(s.hbar, s.mass), float(np.ptp(s.V)), s.hbar)
+    if phase >= 2 * math.pi and bias > RENDERING_WARN_LEVEL:
+        allowed = min(max(grid_limit, math.sqrt(RENDERING_WARN_LEVEL / timestep.LEAK_COEFFICIENT)
+                          * s.hbar / h), limit)
+        add(Finding("error", "evolve.dt",
+                    f"dt = {s.dt:g} is past the grid limit Δt·(E_max + V_max − V_min)/ħ < 2π "
+                    f"(here {phase:.3g}) and the potential's sharp features (height {h:.3g}) "
+                    f"feed the spurious components this opens enough to bias delays by about "
+                    f"{bias:.1e}; the largest allowed is {allowed:.4g} {units.time}, and "
+                    f"{safe:.4g} is safe", forceable=True))
+    elif bias > RENDERING_WARN or band_phase > math.pi:
+        add(Finding("warning", "evolve.dt",
+                    f"Δt·(E_max + ΔV)/ħ = {phase:.3g} is above π: sharp features feed spurious "
+                    f"high-k components (estimated relative bias {bias:.1e}); dt ≤ {safe:.4g} "
+                    "is safe"))
+    elif s.dt_chosen or phase >= 2 * math.pi:
+        add(Finding("info", "evolve.dt",
+                    f"Δt·(E_max + ΔV)/ħ = {phase:.3g}: the grid holds the time step's sidebands; "
+                    f"the detectors read the state filtered to the packet's band (estimated "
+                    f"relative bias {bias:.1e})"))
 
 
 def _output_dir(scenario) -> Path:

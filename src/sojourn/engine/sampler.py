@@ -25,7 +25,8 @@ class Sampler:
         g = setup.grid
         self.dt, self.every = setup.dt, setup.sample_steps
         self.dx = g.dx
-        self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
+        self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass,
+                                       setup.flux_band)
         self._buffer_detectors = self.detectors if closing is None \
             else self.detectors.with_factor(closing)
         self.region = obs.window(g, *setup.region) if setup.region else None

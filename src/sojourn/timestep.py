@@ -1,0 +1,125 @@
+"""The time step a run's measurements need (PHYSICS §3, "Time step and the populated band").
+
+Pure functions on numbers and arrays. The split step reproduces energies only
+modulo 2πħ/Δt: a packet of energy E is coupled by the kicks to the channels at
+E + 2πnħ/Δt (the sidebands of the stroboscopic map). They are open wherever the
+grid holds them (Δt·(E_max + ΔV)/ħ > 2π), and a sharp feature of V — a jump of
+height h couples with strength h at every wavenumber — feeds them with a
+probability that grows as (hΔt/ħ)². Three consequences, measured in
+benchmarks/dt_scan.py:
+1. the packet's own band must not alias: Δt·(E_top + ΔV)/ħ < 2π (E_top the
+   band's largest kinetic energy) — the guard's hard limit;
+2. fast sideband components cross the detectors and swamp the flux: the
+   detectors read the state filtered to the band (`flux_band`), which is
+   exact for the band and blind to the sidebands;
+3. the probability fed into the sidebands biases every delay by about
+   LEAK_COEFFICIENT·(h_eff·Δt/ħ)² (relative), h_eff the sharpness of V at the
+   sidebands' wavenumbers (`sharpness`): the default Δt keeps this below
+   DEFAULT_TIME_ERROR, and never goes below the old grid rule."""
+from __future__ import annotations
+
+import math
+from typing import Optional
+
+import numpy as np
+
+BAND_WIDTHS = 8.0          # the populated band: |k₀| ± 8σ_k (|ψ̃₀|² below e^-32 beyond)
+GRID_PHASE = math.pi / 2   # the grid rule: Δt·(E_max + ΔV)/ħ = π/2 (no sideband on the grid)
+BAND_PHASE = math.pi / 4   # the band rule: Δt·(E_top + ΔV)/ħ ≤ π/4 (in-band splitting error)
+LEAK_COEFFICIENT = 0.5     # relative delay bias ≈ 0.5·(h_eff Δt/ħ)², fitted to the unit step
+                           # (0.39) and the barrier (0.12) of benchmarks/dt_scan.py, rounded up
+DEFAULT_TIME_ERROR = 1e-4  # the default Δt aims at this relative bias from the sidebands
+FILTER_ROOM = 1.5          # the filter needs k_stop ≥ 1.5·k_pass
+
+
+def band_top(info, V_min: float, hbar: float, mass: float) -> float:
+    """The largest local wavenumber of the populated band: |k₀| + 8σ_k where V
+    is lowest (a drop below the packet's level speeds it up)."""
+    k = abs(info.k0) + BAND_WIDTHS * info.sigma_k
+    drop = max(info.level - V_min, 0.0)
+    return math.sqrt(k * k + 2 * mass * drop / hbar ** 2)
+
+
+def band_energy_range(info, V: np.ndarray, hbar: float, mass: float) -> float:
+    """E_top + ΔV: the band's largest kinetic energy plus the range of V."""
+    k = band_top(info, float(np.min(V)), hbar, mass)
+    return (hbar * k) ** 2 / (2 * mass) + float(np.ptp(V))
+
+
+def sideband_wavenumber(info, V: np.ndarray, hbar: float, mass: float, dt: float) -> float:
+    """The smallest local wavenumber a first sideband can have anywhere on the
+    grid: kinetic energy (bottom of the band) + 2πħ/Δt − (V_max − level); 0 if closed."""
+    k_low = max(abs(info.k0) - BAND_WIDTHS * info.sigma_k, 0.0)
+    kinetic = (hbar * k_low) ** 2 / (2 * mass) + 2 * math.pi * hbar / dt \
+        - (float(np.max(V)) - info.level)
+    return math.sqrt(2 * mass * kinetic) / hbar if kinetic > 0 else 0.0
+
+
+def flux_band(grid, info, V, hbar, mass, dt) -> Optional[tuple[float, float]]:
+    """(k_pass, k_stop) of the detectors' filter: pass the band, stop below the
+    first sideband. None where no sideband fits on the grid (nothing to filter)
+    or there is no room between band and sideband."""
+    k_pass = band_top(info, float(np.min(V)), hbar, mass)
+    k_side = sideband_wavenumber(info, V, hbar, mass, dt)
+    if k_side >= grid.k_max:
+        return None    # no sideband fits on the grid: the plain stencils see no spurious band
+    k_stop = k_side
+    if not k_stop >= FILTER_ROOM * k_pass:
+        return None
+    return (k_pass, k_stop)
+
+
+def sharpness(V: np.ndarray, dx: float, support, x_left: float, q_min: float) -> float:
+    """h_eff: the largest |Σ_j (V_{j+1} − V_j) e^{−iqx_j}| over |q| ≥ q_min — the
+    height of a jump that would couple as strongly at those wavenumbers (a jump
+    of height h gives h at every q; a feature smooth on the scale 1/q_min nearly
+    0). Taken over the potential's support (± 2 cells), so the periodic wrap of
+    the box edges, where no packet is, does not count."""
+    if support is None:
+        return 0.0
+    i0 = max(int(math.floor((support[0] - x_left) / dx)) - 2, 0)
+    i1 = min(int(math.ceil((support[1] - x_left) / dx)) + 3, len(V))
+    steps = np.diff(V[i0:i1])
+    if steps.size == 0 or not np.any(steps):
+        return 0.0
+    n = 1 << max(int(math.ceil(math.log2(max(4 * steps.size, 64)))), 6)
+    spectrum = np.abs(np.fft.rfft(steps, n))
+    q = 2 * math.pi * np.fft.rfftfreq(n, d=dx)
+    above = spectrum[q >= q_min]
+    return float(above.max()) if above.size else 0.0
+
+
+def time_error(h_eff: float, dt: float, hbar: float) -> float:
+    """The estimated relative delay bias from the sidebands at this Δt."""
+    return LEAK_COEFFICIENT * (h_eff * dt / hbar) ** 2
+
+
+def grid_rule(kinetic_max: float, v_range: float, hbar: float) -> float:
+    """The grid rule's Δt: no sideband fits on the grid."""
+    return GRID_PHASE * hbar / (kinetic_max + v_range)
+
+
+def bias(grid, info, V, support, hbar, mass, dt) -> float:
+    """The estimated relative delay bias a Δt causes at the potential's sharp
+    features: LEAK_COEFFICIENT·(h_eff Δt/ħ)², h_eff taken above twice the band
+    (the sidebands, and below the grid limit the near field of a jump at the
+    grid's top wavenumbers, both go as (hΔt)²: benchmarks/dt_scan.py)."""
+    q_min = 2 * band_top(info, float(np.min(V)), hbar, mass)
+    return time_error(sharpness(V, grid.dx, support, grid.left, q_min), dt, hbar)
+
+
+def choose(grid, info, V, support, hbar, mass, target: float = DEFAULT_TIME_ERROR,
+           order: int = 2) -> tuple[float, float]:
+    """(Δt, estimated relative bias) for a target: the largest Δt whose bias
+    (`bias`) stays below `target`, capped by the band rule (scaled to the
+    scheme's order: a fourth-order scheme takes twice the band phase), and
+    never below the grid rule (the old default, whose bias is below the grid's
+    own Δx² error wherever the grid rule is the larger)."""
+    e_band = band_energy_range(info, V, hbar, mass)
+    band_dt = BAND_PHASE * (2.0 if order >= 4 else 1.0) * hbar / e_band
+    safe_dt = min(grid_rule(grid.kinetic_max(hbar, mass), float(np.ptp(V)), hbar), band_dt)
+    h = sharpness(V, grid.dx, support, grid.left,
+                  2 * band_top(info, float(np.min(V)), hbar, mass))
+    leak_dt = math.sqrt(target / LEAK_COEFFICIENT) * hbar / h if h > 0 else math.inf
+    dt = max(safe_dt, min(band_dt, leak_dt))
+    return dt, time_error(h, dt, hbar)
