@@ -19,6 +19,7 @@ from .theory.scattering import scatter
 from .guards import Finding, guard, refuse_endless, refuse_oversized, time_step_limit
 from .timestep import band_energy_range, choose as choose_dt, flux_band
 from .engine.propagate import ORDER
+from .accuracy import DEFAULT_ACCURACY, plan as accuracy_plan
 
 
 @dataclass
@@ -42,6 +43,7 @@ class Setup:
     findings: list = field(default_factory=list)
     flux_band: Optional[tuple[float, float]] = None   # (k_pass, k_stop) of the detectors' filter
     dt_error: float = 0.0     # a chosen Δt's estimated relative delay bias (timestep.choose)
+    accuracy: Optional[object] = None   # the accuracy.Plan, when evolve.accuracy / auto chose
 
     @property
     def band_phase(self) -> float:
@@ -313,10 +315,14 @@ def build(scenario: Scenario) -> Setup:
 
 def _build(scenario: Scenario) -> Setup:
     findings: list[Finding] = []
-    refuse_oversized(scenario)
-    grid = Grid.from_spec(scenario.grid)
     hbar, mass = scenario.hbar, scenario.particle_mass
     potential = scenario.build_potential()
+    plan = None
+    if scenario.grid.points == "auto" or scenario.evolve.accuracy is not None:
+        plan, scenario = _plan(scenario, potential)
+        potential = scenario.build_potential()   # sampled at the chosen grid's spacing
+    refuse_oversized(scenario)
+    grid = Grid.from_spec(scenario.grid)
     V = potential.on_grid(grid.x, grid.dx)
     if not np.all(np.isfinite(V)):
         bad = grid.x[~np.isfinite(V)][0]
@@ -340,7 +346,9 @@ def _build(scenario: Scenario) -> Setup:
                             f"({v_range:g}) is not a usable number; check mass, grid and potential")
     limit = time_step_limit(band_energy_range(info, V, hbar, mass), 0.0, hbar)
     dt_error = 0.0
-    if scenario.evolve.dt is None:
+    if scenario.evolve.dt is None and plan is not None:
+        dt, dt_error, dt_chosen = plan.dt, plan.time_error, True
+    elif scenario.evolve.dt is None:
         dt, dt_error = choose_dt(grid, info, V, None if potential.confining
                                  else potential.support(), hbar, mass,
                                  order=ORDER[scenario.evolve.scheme])
@@ -399,11 +407,54 @@ def _build(scenario: Scenario) -> Setup:
                   sample_steps, detectors, reference, region, findings,
                   flux_band(grid, info, V, hbar, mass, dt), dt_error)
     guard(setup, limit, absorber_width)
+    if plan is not None:
+        _judge_plan(setup, plan)
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup
 
 
+
+
+def _plan(scenario, potential):
+    """(Plan, the scenario with what the plan chose) for evolve.accuracy / grid.points: auto."""
+    level = float(potential(np.array([scenario.packet.center]))[0])
+    try:
+        info = packets.describe(scenario.packet, scenario.hbar, scenario.particle_mass,
+                                level if math.isfinite(level) else 0.0)
+    except ValueError as exc:
+        raise ScenarioError(f"{scenario.source}: packet.energy: {exc}") from None
+    target = scenario.evolve.accuracy or DEFAULT_ACCURACY
+    auto = scenario.grid.points == "auto"
+    scheme = None if auto and "scheme" not in scenario.evolve.model_fields_set \
+        else scenario.evolve.scheme
+    chosen = accuracy_plan(scenario.grid.span, scenario.grid.points, scenario.evolve.dt, scheme,
+                           target, potential, info, scenario.hbar, scenario.particle_mass,
+                           _reference(scenario, potential, info))
+    grid = scenario.grid.model_copy(update={"points": chosen.points, "span": chosen.span})
+    evolve = scenario.evolve.model_copy(update={"scheme": chosen.scheme})
+    return chosen, scenario.model_copy(update={"grid": grid, "evolve": evolve})
+
+
+def _judge_plan(setup, plan) -> None:
+    """The plan as an info finding, and a warning where it falls short of its target."""
+    units = setup.scenario.unit_system.time
+    key = "grid.points" if setup.scenario.evolve.accuracy is None else "evolve.accuracy"
+    found = [Finding("info", key, plan.describe(units))]
+    if not plan.reached:
+        found.append(Finding("warning", "grid.points",
+                             f"auto: even {plan.points} points leave an estimated grid error "
+                             f"{plan.grid_error:.1e}, above the accuracy's share; the "
+                             f"accuracy {plan.target:g} is out of reach in this box"))
+    elif plan.estimate > plan.target:
+        found.append(Finding("warning", key,
+                             f"the estimated error {plan.estimate:.1e} is above the requested "
+                             f"accuracy {plan.target:g} with the given points/dt; leave them "
+                             "out (grid.points: auto, no dt) to reach it"))
+    for finding in found:
+        finding.line = setup.scenario.line_of(finding.key)
+    setup.findings.extend(found)
+    setup.accuracy = plan
 
 
 def _reference(scenario, potential, info) -> float:

@@ -280,7 +280,7 @@ def _time_step(s, limit: float, add) -> None:
                     f"feed the spurious components this opens enough to bias delays by about "
                     f"{bias:.1e}; the largest allowed is {allowed:.4g} {units.time}, and "
                     f"{safe:.4g} is safe", forceable=True))
-    elif bias > RENDERING_WARN or band_phase > math.pi:
+    elif bias > (s.scenario.evolve.accuracy or RENDERING_WARN) or band_phase > math.pi:
         add(Finding("warning", "evolve.dt",
                     f"Δt·(E_max + ΔV)/ħ = {phase:.3g} is above π: sharp features feed spurious "
                     f"high-k components (estimated relative bias {bias:.1e}); dt ≤ {safe:.4g} "
@@ -338,6 +338,12 @@ def rendered_potential(x: np.ndarray, V: np.ndarray, dx: float, support, mass: f
 
 
 def rendering_error(s) -> Optional[dict]:
+    """`grid_rendering_error` of a Setup."""
+    return grid_rendering_error(s.potential, s.packet, s.grid.x, s.V, s.grid.dx, s.hbar, s.mass,
+                                s.reference)
+
+
+def grid_rendering_error(potential, info, x, V, dx, hbar, mass, reference) -> Optional[dict]:
     """How much the packet's R, T and flux-weighted delays ⟨τ_R⟩, ⟨τ_T⟩ change
     when the stationary theory is solved on the grid's rendering of V instead
     of the exact V: an estimate of the part of a run's error that comes from
@@ -345,11 +351,10 @@ def rendering_error(s) -> Optional[dict]:
     grid's own error at a jump is not in it). Relative changes (delays
     relative to |τ| + 1 % of a passage time). None where it cannot be estimated
     (a trap, no support, a support of too many cells, a delta term)."""
-    potential, info = s.potential, s.packet
     support = potential.support()
     if potential.confining or support is None or potential.deltas():
         return None
-    rendered = rendered_potential(s.grid.x, s.V, s.grid.dx, support, s.mass)
+    rendered = rendered_potential(x, V, dx, support, mass)
     if rendered is None:
         return None
     staircase, left = rendered
@@ -360,7 +365,7 @@ def rendering_error(s) -> Optional[dict]:
     k = k0 + 6 * info.sigma_k * nodes
     w = weights * np.exp(-0.5 * ((k - k0) / info.sigma_k) ** 2)
     keep = k > 0.05 * k0
-    energies = info.level + (s.hbar * k[keep]) ** 2 / (2 * s.mass)
+    energies = info.level + (hbar * k[keep]) ** 2 / (2 * mass)
     w = w[keep]
     inc = potential.levels()[0 if direction == "right" else 1]
     above = energies > inc
@@ -368,9 +373,9 @@ def rendering_error(s) -> Optional[dict]:
     if energies.size < 4:
         return None
     try:
-        exact = scatter(potential, energies, hbar=s.hbar, x_r=s.reference, direction=direction,
+        exact = scatter(potential, energies, hbar=hbar, x_r=reference, direction=direction,
                         dwell=False)
-        grid = scatter(staircase, energies - left, hbar=s.hbar, x_r=s.reference,
+        grid = scatter(staircase, energies - left, hbar=hbar, x_r=reference,
                        x_t=exact.x_t, direction=direction, dwell=False)
     except (SojournError, ValueError, FloatingPointError):
         return None

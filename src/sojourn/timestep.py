@@ -26,8 +26,10 @@ import numpy as np
 BAND_WIDTHS = 8.0          # the populated band: |k₀| ± 8σ_k (|ψ̃₀|² below e^-32 beyond)
 GRID_PHASE = math.pi / 2   # the grid rule: Δt·(E_max + ΔV)/ħ = π/2 (no sideband on the grid)
 BAND_PHASE = math.pi / 4   # the band rule: Δt·(E_top + ΔV)/ħ ≤ π/4 (in-band splitting error)
-LEAK_COEFFICIENT = 0.5     # relative delay bias ≈ 0.5·(h_eff Δt/ħ)², fitted to the unit step
-                           # (0.39) and the barrier (0.12) of benchmarks/dt_scan.py, rounded up
+LEAK_COEFFICIENT = 1.0     # relative delay bias ≈ (h_eff Δt/ħ)²: the unit step gave 0.3–0.4,
+                           # the barrier 0.1–0.9 (benchmarks/dt_scan.py); the largest, rounded up
+SIDEBAND_SHARE = 0.3       # probability the sidebands carry off ≈ 0.3·(h_eff Δt/ħ)² at most (the
+                           # unit step: 0.03–0.1 near the default Δt, up to 0.3 far past it)
 DEFAULT_TIME_ERROR = 1e-4  # the default Δt aims at this relative bias from the sidebands
 FILTER_ROOM = 1.5          # the filter needs k_stop ≥ 1.5·k_pass
 
@@ -123,3 +125,12 @@ def choose(grid, info, V, support, hbar, mass, target: float = DEFAULT_TIME_ERRO
     leak_dt = math.sqrt(target / LEAK_COEFFICIENT) * hbar / h if h > 0 else math.inf
     dt = max(safe_dt, min(band_dt, leak_dt))
     return dt, time_error(h, dt, hbar)
+
+
+def sideband_share(info, V, dx, support, x_left, hbar, mass, dt) -> float:
+    """The probability the time step's sidebands may carry off (0 where none
+    fits on a grid of spacing dx): what a channel theory closes may receive."""
+    if support is None or sideband_wavenumber(info, V, hbar, mass, dt) >= math.pi / dx:
+        return 0.0
+    h = sharpness(V, dx, support, x_left, 2 * band_top(info, float(np.min(V)), hbar, mass))
+    return SIDEBAND_SHARE * (h * dt / hbar) ** 2

@@ -29,9 +29,20 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
 
 
+def _auto_word(value):
+    """'auto' in any case stays the word; anything else is validated as a number."""
+    return value.strip().lower() if isinstance(value, str) and value.strip().lower() == "auto" \
+        else value
+
+
+
+
 class GridSpec(_Strict):
     span: tuple[float, float]
-    points: int = Field(ge=16, description="number of grid points")
+    # a number of points, or 'auto': as many as evolve.accuracy needs (chosen by build)
+    points: Annotated[Union[Annotated[int, Field(ge=16)], Literal["auto"]],
+                      BeforeValidator(_auto_word)] = Field(
+        description="number of grid points, or auto")
 
     @field_validator("span")
     @classmethod
@@ -46,6 +57,8 @@ class GridSpec(_Strict):
 
     @property
     def dx(self) -> float:
+        if self.points == "auto":
+            raise ValueError("grid.points: auto has no spacing until build chooses the points")
         return (self.span[1] - self.span[0]) / self.points
 
 
@@ -64,20 +77,19 @@ class PacketSpec(_Strict):
         return self
 
 
-def _duration_word(value):
-    """'auto' in any case stays the word; anything else is validated as a number."""
-    return value.strip().lower() if isinstance(value, str) and value.strip().lower() == "auto" \
-        else value
 
 
 class EvolveSpec(_Strict):
     # a time, or 'auto': until every outgoing channel has left the potential and passed
     # its detector (worked out by build from the packet and the stationary delays)
     duration: Annotated[Union[Annotated[float, Field(gt=0)], Literal["auto"]],
-                        BeforeValidator(_duration_word)]
+                        BeforeValidator(_auto_word)]
     dt: Optional[float] = Field(default=None, gt=0)
     scheme: Literal["strang", "yoshida4"] = "strang"
     precision: Literal["double", "single"] = "double"
+    # the relative error every reported delay should reach: build chooses dt (and, with
+    # grid.points: auto, the points and the scheme) for it at least cost
+    accuracy: Optional[float] = Field(default=None, ge=1e-6, le=0.1)
 
 
 class AbsorberSpec(_Strict):
@@ -185,8 +197,9 @@ class Scenario(_Strict):
         return [getattr(item, next(iter(type(item).model_fields))) for item in self.potential]
 
     def build_potential(self) -> pot.Potential:
+        # grid.points: auto samples at the potential's own default until build has chosen
         return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.span,
-                             spacing=self.grid.dx / 4)
+                             spacing=None if self.grid.points == "auto" else self.grid.dx / 4)
 
     def line_of(self, dotted: str) -> Optional[int]:
         """The line of a dotted key (e.g. 'packet.width') in the scenario's text, if known."""

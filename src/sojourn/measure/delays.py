@@ -71,12 +71,17 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
     channels, notes = {}, []
     for channel, side in (("reflection", "left"), ("transmission", "right")):
         final = float(run.observables[f"P_{side}"][-1] + run.observables[f"absorbed_{side}"][-1])
-        if final > health.CHANNEL_MIN:
+        expected = None if prediction is None else getattr(prediction, channel)
+        closed = prediction is not None and (expected is None or expected.probability < 1e-8)
+        floor = health.channel_floor(run, closed)
+        if final > floor:
             channels[channel] = measure_channel(run, stats, channel, warnings, ref)
         else:
             channels[channel] = None
+            why = "no outgoing packet to time" if floor == health.CHANNEL_MIN else \
+                "what the time step's spurious components may carry where theory transmits nothing"
             notes.append(f"{channel} not measured: its probability {max(final, 0.0):.2g} is "
-                         f"below {health.CHANNEL_MIN:g}, no outgoing packet to time")
+                         f"below {floor:.2g}, {why}")
     if prediction is None:
         warnings.append(f"no theory prediction: {why}")
     else:

@@ -1,0 +1,133 @@
+"""The grid, time step and scheme for a requested accuracy (`evolve.accuracy: ε`
+with `grid.points: auto`; PHYSICS §3, "Time to accuracy"). Pure: numbers in,
+a `Plan` out; `build` applies it.
+
+The error model (measured in benchmarks/dt_scan.py):
+1. the grid: a jump's Δx² error, estimated by stationary theory on the grid's
+   rendering of V (`guards.grid_rendering_error`) times GRID_SAFETY. It falls
+   as Δx² only while each jump keeps its place relative to the cells, so the
+   span is shifted (by less than half a cell, its length kept) to put the first
+   jump the packet meets on a grid point (`aligned_span`): a grid point of N
+   points is one of 2N, so halving Δx keeps it there;
+2. the time step: `timestep.bias`, (h_eff·Δt/ħ)² at sharp features, with the
+   band rule as a cap; a scheme's largest sub-step |w|·Δt is what the kicks see.
+ε is shared: GRID_SHARE·ε to the grid, TIME_SHARE·ε to the time step; the rest
+is left for the methods' own errors (tails, sampling). Among the candidate
+point counts (2^a and 3·2^a) the fewest that reach the grid share are taken,
+and of the schemes the one with the least FFT work for the time share."""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Optional
+
+import numpy as np
+
+from . import timestep
+from .engine.propagate import SCHEMES
+from .guards import RESOLUTION_MARGIN, grid_rendering_error
+from .model.grid import Grid
+
+DEFAULT_ACCURACY = 1e-3    # what grid.points: auto aims at without evolve.accuracy
+GRID_SHARE = 0.4           # of ε, for the grid's Δx² error
+TIME_SHARE = 0.4           # of ε, for the time step's bias
+GRID_SAFETY = 1.5          # the rendering estimate was 0.8–1 × the measured jump error with
+                           # the jump on a grid point, 2–4 × above it for the barrier
+MAX_AUTO_POINTS = 2 ** 22  # auto stops here (and says the accuracy is out of reach)
+
+
+@dataclass(frozen=True)
+class Plan:
+    """What an accuracy request chose, and the error it expects."""
+
+    target: float
+    points: int
+    span: tuple[float, float]
+    shift: float              # how far the span moved to align the first jump
+    dt: float
+    scheme: str
+    grid_error: float
+    time_error: float
+    reached: bool             # False: the grid share is out of reach below MAX_AUTO_POINTS
+
+    @property
+    def estimate(self) -> float:
+        return self.grid_error + self.time_error
+
+    def describe(self, units_time: str = "") -> str:
+        moved = f" (span moved by {self.shift:+.3g} to put the first jump on a grid point)" \
+            if self.shift else ""
+        return (f"accuracy {self.target:g}: {self.points} points{moved}, dt = {self.dt:.4g} "
+                f"{units_time}, scheme {self.scheme}; estimated relative error "
+                f"{self.estimate:.1e} (grid {self.grid_error:.1e}, time step "
+                f"{self.time_error:.1e})").replace("  ", " ")
+
+
+def aligned_span(span, points: int, jumps, moving_right: bool = True) -> tuple[float, float]:
+    """The span shifted by less than half a cell (its length kept) so that the
+    first jump the packet meets lies on a grid point; unchanged without jumps."""
+    left, right = float(span[0]), float(span[1])
+    inside = [j for j in jumps if left < j < right]
+    if not inside:
+        return left, right
+    jump = min(inside) if moving_right else max(inside)
+    dx = (right - left) / points
+    shift = jump - (left + round((jump - left) / dx) * dx)
+    return left + shift, right + shift
+
+
+def candidate_points(at_least: int):
+    """FFT-friendly point counts (2^a and 3·2^a) from at_least up to MAX_AUTO_POINTS."""
+    out = sorted({c for a in range(4, 23) for c in (2 ** a, 3 * 2 ** (a - 1))
+                  if at_least <= c <= MAX_AUTO_POINTS})
+    return out or [MAX_AUTO_POINTS]
+
+
+def grid_error(potential, info, grid: Grid, V, hbar, mass, reference) -> float:
+    """GRID_SAFETY × the largest relative change of a delay ⟨τ_R⟩, ⟨τ_T⟩ the grid's
+    rendering causes."""
+    estimate = grid_rendering_error(potential, info, grid.x, V, grid.dx, hbar, mass, reference)
+    delays = [v for name, v in (estimate or {}).items() if name.startswith("tau")]
+    return GRID_SAFETY * max(delays) if delays else 0.0
+
+
+def plan(span, points, dt, scheme, target, potential, info, hbar, mass,
+         reference) -> Plan:
+    """Choose what the request leaves open: `points` (an int, or 'auto'), `dt`
+    (a number, or None) and `scheme` (a name, or None: the cheapest) for a
+    relative accuracy `target`."""
+    if not 0 < target < 1:
+        raise ValueError(f"accuracy must lie in (0, 1), got {target!r}")
+    right_moving = info.k0 >= 0
+    support = None if potential.confining else potential.support()
+    if points == "auto":
+        lowest = float(np.min(potential(np.linspace(span[0], span[1], 4097))))
+        k = timestep.band_top(info, min(lowest, info.level), hbar, mass)
+        fewest = int(math.ceil((span[1] - span[0]) * RESOLUTION_MARGIN * k / math.pi))
+        for n in candidate_points(fewest):
+            grid = Grid(*aligned_span(span, n, potential.jumps(), right_moving), n)
+            V = potential.on_grid(grid.x, grid.dx)
+            g_err = grid_error(potential, info, grid, V, hbar, mass, reference)
+            if g_err <= GRID_SHARE * target:
+                break
+    else:
+        grid = Grid(float(span[0]), float(span[1]), int(points))
+        V = potential.on_grid(grid.x, grid.dx)
+        g_err = grid_error(potential, info, grid, V, hbar, mass, reference)
+    best = None
+    for name in ([scheme] if scheme else list(SCHEMES)):
+        s = SCHEMES[name]
+        widest = max(abs(w) for w in s.drifts)   # the kicks see sub-steps of |w|·Δt
+        if dt is None:
+            step, _ = timestep.choose(grid, info, V, support, hbar, mass,
+                                      TIME_SHARE * target, s.order)
+            step = step / widest if widest > 1 else step
+        else:
+            step = dt
+        t_err = timestep.bias(grid, info, V, support, hbar, mass, step * widest)
+        work = len(s.drifts) / step
+        if best is None or work < best[0]:
+            best = (work, name, step, t_err)
+    _, name, step, t_err = best
+    return Plan(target, grid.points, (grid.left, grid.right), grid.left - float(span[0]),
+                step, name, g_err, t_err, g_err <= GRID_SHARE * target or points != "auto")
