@@ -156,6 +156,26 @@ def _richardson(base, finer, order_ratio):
     return abs(base - finer) * order_ratio / (order_ratio - 1)
 
 
+def _against_accuracy(report: DelayReport, target: Optional[float]) -> None:
+    """Set each delay's error bar beside a requested evolve.accuracy: a warning
+    for each above it, a note when all are within it."""
+    if target is None:
+        return
+    over = []
+    for channel in report.channels():
+        for method, result in channel.measured.items():
+            if result.error is not None and result.delay:
+                relative = result.error / abs(result.delay)
+                if relative > target:
+                    over.append(f"{channel.channel} {method} ±{relative:.1e}")
+    if over:
+        report.warnings.append(f"verify: above the requested accuracy {target:g} (relative "
+                               f"error bars): {', '.join(over)}")
+    else:
+        report.notes.append(f"verify: every delay's error bar is within the requested "
+                            f"accuracy {target:g}")
+
+
 def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
            keep: Optional[Path] = None) -> Convergence:
     """Rerun the scenario of a run file on a 2× finer grid with Δt/4 and at Δt/2
@@ -171,16 +191,21 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
         scenario = rf.scenario()
         dt = float(rf.attrs["dt"])
         scheme = str(rf.attrs["scheme"])
-    points = scenario.grid.points
+        x = np.asarray(rf.x, float)
+    # the run's own grid (an auto grid's points and aligned span), refined by halving dx
+    points = len(x)
+    span = [float(x[0]), float(x[0] + points * (x[1] - x[0]))]
     order = ORDER[scheme]
     folder = Path(keep) if keep else Path(tempfile.mkdtemp(prefix="sojourn-verify-"))
     folder.mkdir(parents=True, exist_ok=True)
     try:
         reruns = {}
         plans = {
-            "grid": ({"grid.points": 2 * points, "evolve.dt": dt / 4},
+            "grid": ({"grid.points": 2 * points, "grid.span": span, "evolve.dt": dt / 4,
+                      "evolve.scheme": scheme},
                      f"rerun 1/2: {2 * points} points, dt = {dt / 4:.4g} (about 8× the base run)"),
-            "time": ({"evolve.dt": dt / 2},
+            "time": ({"grid.points": points, "grid.span": span, "evolve.dt": dt / 2,
+                      "evolve.scheme": scheme},
                      f"rerun 2/2: dt = {dt / 2:.4g} (about 2× the base run)"),
         }
         for name, (changes, message) in plans.items():
@@ -213,6 +238,7 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
                     "grid": values.get("grid", math.nan) - result.delay,
                     "time": values.get("time", math.nan) - result.delay,
                     "error": result.error}
+        _against_accuracy(base, scenario.evolve.accuracy)
         return Convergence(base, reruns["grid"], reruns["time"], moves)
     finally:
         if keep is None:
