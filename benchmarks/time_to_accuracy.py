@@ -98,7 +98,7 @@ def crank_nicolson_run(case: str, points: int, dt: float) -> dict:
     setup = replace(setup, flux_band=None)   # plain stencils: CN's state has no sidebands
     hbar, mass, n, dx = setup.hbar, setup.mass, setup.grid.points, setup.grid.dx
     W = np.zeros(n) if setup.W is None else setup.W
-    c = hbar / (2 * mass * dx * dx)          # H = −ħ²/2m ∂² + V − iW, central differences
+    c = hbar ** 2 / (2 * mass * dx * dx)     # H = −ħ²/2m ∂² + V − iW, central differences
     a = 0.5j * setup.dt / hbar
     off = np.full(n - 1, -a * c, complex)
     diag = 1 + a * (2 * c + setup.V - 1j * W)

@@ -25,7 +25,9 @@ import numpy as np
 
 from . import timestep
 from .engine.propagate import SCHEMES
-from .guards import RESOLUTION_MARGIN, grid_rendering_error
+from .errors import ScenarioError
+from .guards import RESOLUTION_MARGIN, Finding, grid_rendering_error
+from .model import packets
 from .model.grid import Grid
 
 DEFAULT_ACCURACY = 1e-3    # what grid.points: auto aims at without evolve.accuracy
@@ -131,3 +133,44 @@ def plan(span, points, dt, scheme, target, potential, info, hbar, mass,
     _, name, step, t_err = best
     return Plan(target, grid.points, (grid.left, grid.right), grid.left - float(span[0]),
                 step, name, g_err, t_err, g_err <= GRID_SHARE * target or points != "auto")
+
+
+def plan_scenario(scenario, potential, reference_of):
+    """(Plan, the scenario with what it chose: points, span, scheme) for
+    evolve.accuracy / grid.points: auto; `reference_of(scenario, potential, info)`
+    gives the reference point (build's rule)."""
+    level = float(potential(np.array([scenario.packet.center]))[0])
+    try:
+        info = packets.describe(scenario.packet, scenario.hbar, scenario.particle_mass,
+                                level if math.isfinite(level) else 0.0)
+    except ValueError as exc:
+        raise ScenarioError(f"{scenario.source}: packet.energy: {exc}") from None
+    target = scenario.evolve.accuracy or DEFAULT_ACCURACY
+    auto = scenario.grid.points == "auto"
+    scheme = None if auto and "scheme" not in scenario.evolve.model_fields_set \
+        else scenario.evolve.scheme
+    chosen = plan(scenario.grid.span, scenario.grid.points, scenario.evolve.dt, scheme, target,
+                  potential, info, scenario.hbar, scenario.particle_mass,
+                  reference_of(scenario, potential, info))
+    grid = scenario.grid.model_copy(update={"points": chosen.points, "span": chosen.span})
+    evolve = scenario.evolve.model_copy(update={"scheme": chosen.scheme})
+    return chosen, scenario.model_copy(update={"grid": grid, "evolve": evolve})
+
+
+def plan_findings(chosen: Plan, scenario) -> list:
+    """The plan as an info finding, and a warning where it falls short of its target."""
+    key = "grid.points" if scenario.evolve.accuracy is None else "evolve.accuracy"
+    found = [Finding("info", key, chosen.describe(scenario.unit_system.time))]
+    if not chosen.reached:
+        found.append(Finding("warning", "grid.points",
+                             f"auto: even {chosen.points} points leave an estimated grid error "
+                             f"{chosen.grid_error:.1e}, above the accuracy's share; the "
+                             f"accuracy {chosen.target:g} is out of reach in this box"))
+    elif chosen.estimate > chosen.target:
+        found.append(Finding("warning", key,
+                             f"the estimated error {chosen.estimate:.1e} is above the requested "
+                             f"accuracy {chosen.target:g} with the given points/dt; leave them "
+                             "out (grid.points: auto, no dt) to reach it"))
+    for finding in found:
+        finding.line = scenario.line_of(finding.key)
+    return found

@@ -19,7 +19,7 @@ from .theory.scattering import scatter
 from .guards import Finding, guard, refuse_endless, refuse_oversized, time_step_limit
 from .timestep import band_energy_range, choose as choose_dt, flux_band
 from .engine.propagate import ORDER
-from .accuracy import DEFAULT_ACCURACY, plan as accuracy_plan
+from .accuracy import plan_findings, plan_scenario
 
 
 @dataclass
@@ -319,7 +319,7 @@ def _build(scenario: Scenario) -> Setup:
     potential = scenario.build_potential()
     plan = None
     if scenario.grid.points == "auto" or scenario.evolve.accuracy is not None:
-        plan, scenario = _plan(scenario, potential)
+        plan, scenario = plan_scenario(scenario, potential, _reference)
         potential = scenario.build_potential()   # sampled at the chosen grid's spacing
     refuse_oversized(scenario)
     grid = Grid.from_spec(scenario.grid)
@@ -408,53 +408,13 @@ def _build(scenario: Scenario) -> Setup:
                   flux_band(grid, info, V, hbar, mass, dt), dt_error)
     guard(setup, limit, absorber_width)
     if plan is not None:
-        _judge_plan(setup, plan)
+        setup.findings.extend(plan_findings(plan, setup.scenario))
+        setup.accuracy = plan
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup
 
 
-
-
-def _plan(scenario, potential):
-    """(Plan, the scenario with what the plan chose) for evolve.accuracy / grid.points: auto."""
-    level = float(potential(np.array([scenario.packet.center]))[0])
-    try:
-        info = packets.describe(scenario.packet, scenario.hbar, scenario.particle_mass,
-                                level if math.isfinite(level) else 0.0)
-    except ValueError as exc:
-        raise ScenarioError(f"{scenario.source}: packet.energy: {exc}") from None
-    target = scenario.evolve.accuracy or DEFAULT_ACCURACY
-    auto = scenario.grid.points == "auto"
-    scheme = None if auto and "scheme" not in scenario.evolve.model_fields_set \
-        else scenario.evolve.scheme
-    chosen = accuracy_plan(scenario.grid.span, scenario.grid.points, scenario.evolve.dt, scheme,
-                           target, potential, info, scenario.hbar, scenario.particle_mass,
-                           _reference(scenario, potential, info))
-    grid = scenario.grid.model_copy(update={"points": chosen.points, "span": chosen.span})
-    evolve = scenario.evolve.model_copy(update={"scheme": chosen.scheme})
-    return chosen, scenario.model_copy(update={"grid": grid, "evolve": evolve})
-
-
-def _judge_plan(setup, plan) -> None:
-    """The plan as an info finding, and a warning where it falls short of its target."""
-    units = setup.scenario.unit_system.time
-    key = "grid.points" if setup.scenario.evolve.accuracy is None else "evolve.accuracy"
-    found = [Finding("info", key, plan.describe(units))]
-    if not plan.reached:
-        found.append(Finding("warning", "grid.points",
-                             f"auto: even {plan.points} points leave an estimated grid error "
-                             f"{plan.grid_error:.1e}, above the accuracy's share; the "
-                             f"accuracy {plan.target:g} is out of reach in this box"))
-    elif plan.estimate > plan.target:
-        found.append(Finding("warning", key,
-                             f"the estimated error {plan.estimate:.1e} is above the requested "
-                             f"accuracy {plan.target:g} with the given points/dt; leave them "
-                             "out (grid.points: auto, no dt) to reach it"))
-    for finding in found:
-        finding.line = setup.scenario.line_of(finding.key)
-    setup.findings.extend(found)
-    setup.accuracy = plan
 
 
 def _reference(scenario, potential, info) -> float:

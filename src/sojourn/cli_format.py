@@ -27,8 +27,11 @@ def format_check(scenario, setup) -> list:
         f"σ_k = {info.sigma_k:.4g} (k₀/σ_k = {info.k_ratio:.3g}); E₀ = {info.energy:.6g}, "
         f"⟨E⟩ = {info.mean_energy:.6g} {units.energy}; v₀ = {info.group_velocity:.4g}",
         f"time       dt = {setup.dt:.4g} {units.time}{' (chosen)' if setup.dt_chosen else ''}, "
-        f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_max+ΔV)/ħ = "
-        f"{setup.grid_phase:.3g} (limit 2π, safe below π); scheme {scenario.evolve.scheme}",
+        f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_top+ΔV)/ħ = "
+        f"{setup.band_phase:.3g} over the packet's band (limit 2π), Δt·(E_max+ΔV)/ħ = "
+        f"{setup.grid_phase:.3g} on the grid"
+        f"{' (detectors read the band-filtered state)' if setup.flux_band else ''}; "
+        f"scheme {setup.scenario.evolve.scheme}",
         f"recording  every {setup.record_steps} steps ({setup.record_steps * setup.dt:.4g} "
         f"{units.time}), {setup.snapshots} snapshots; samples every {setup.sample_steps} steps",
         f"measure    reference {setup.reference:g}; detectors "

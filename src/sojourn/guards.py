@@ -219,10 +219,13 @@ def guard(s, limit: float, absorber_width: float) -> None:
 
     for x_jump in s.potential.jumps():
         offset = ((x_jump - grid.left) / grid.dx) % 1.0
-        if abs(offset - 0.5) > 1e-6:
+        off_point = min(offset, 1 - offset)
+        if off_point > 1e-6:
             add(Finding("info", "potential",
-                        f"the jump at x = {x_jump:g} is {abs(offset - 0.5):.2f}·dx off the midpoint "
-                        "between grid points: its cell is averaged so its position is kept"))
+                        f"the jump at x = {x_jump:g} is {off_point:.2f}·dx from the nearest grid "
+                        "point: its cell is averaged so its position is kept, but halving dx "
+                        "moves it within its cell (the Δx² error then changes irregularly with "
+                        "N); grid.points: auto puts the first jump on a grid point"))
             break
 
     # memory, disk and run time

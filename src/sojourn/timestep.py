@@ -102,12 +102,13 @@ def grid_rule(kinetic_max: float, v_range: float, hbar: float) -> float:
 
 
 def bias(grid, info, V, support, hbar, mass, dt) -> float:
-    """The estimated relative delay bias a Δt causes at the potential's sharp
-    features: LEAK_COEFFICIENT·(h_eff Δt/ħ)², h_eff taken above twice the band
-    (the sidebands, and below the grid limit the near field of a jump at the
-    grid's top wavenumbers, both go as (hΔt)²: benchmarks/dt_scan.py)."""
-    q_min = 2 * band_top(info, float(np.min(V)), hbar, mass)
-    return time_error(sharpness(V, grid.dx, support, grid.left, q_min), dt, hbar)
+    """The estimated relative delay bias a Δt causes: LEAK_COEFFICIENT·(h_eff Δt/ħ)²
+    with h_eff over all wavenumbers. At a jump it is the sidebands' bias (and
+    below the grid limit the jump's near field at the grid's top wavenumbers;
+    both go as (hΔt)², benchmarks/dt_scan.py); for a smooth feature the same
+    form bounds the in-band splitting error (the smooth step of
+    configs/smooth_step.yaml gave 0.012·(hΔt/ħ)²: the bound is conservative)."""
+    return time_error(sharpness(V, grid.dx, support, grid.left, 0.0), dt, hbar)
 
 
 def choose(grid, info, V, support, hbar, mass, target: float = DEFAULT_TIME_ERROR,
@@ -116,12 +117,12 @@ def choose(grid, info, V, support, hbar, mass, target: float = DEFAULT_TIME_ERRO
     (`bias`) stays below `target`, capped by the band rule (scaled to the
     scheme's order: a fourth-order scheme takes twice the band phase), and
     never below the grid rule (the old default, whose bias is below the grid's
-    own Δx² error wherever the grid rule is the larger)."""
+    own Δx² error wherever the grid rule is the larger; on a resolved grid it
+    keeps the band's phase below π/2 too)."""
     e_band = band_energy_range(info, V, hbar, mass)
     band_dt = BAND_PHASE * (2.0 if order >= 4 else 1.0) * hbar / e_band
-    safe_dt = min(grid_rule(grid.kinetic_max(hbar, mass), float(np.ptp(V)), hbar), band_dt)
-    h = sharpness(V, grid.dx, support, grid.left,
-                  2 * band_top(info, float(np.min(V)), hbar, mass))
+    safe_dt = grid_rule(grid.kinetic_max(hbar, mass), float(np.ptp(V)), hbar)
+    h = sharpness(V, grid.dx, support, grid.left, 0.0)
     leak_dt = math.sqrt(target / LEAK_COEFFICIENT) * hbar / h if h > 0 else math.inf
     dt = max(safe_dt, min(band_dt, leak_dt))
     return dt, time_error(h, dt, hbar)
@@ -132,5 +133,5 @@ def sideband_share(info, V, dx, support, x_left, hbar, mass, dt) -> float:
     fits on a grid of spacing dx): what a channel theory closes may receive."""
     if support is None or sideband_wavenumber(info, V, hbar, mass, dt) >= math.pi / dx:
         return 0.0
-    h = sharpness(V, dx, support, x_left, 2 * band_top(info, float(np.min(V)), hbar, mass))
+    h = sharpness(V, dx, support, x_left, 0.0)
     return SIDEBAND_SHARE * (h * dt / hbar) ** 2

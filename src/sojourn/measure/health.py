@@ -116,8 +116,7 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
                         "for the grid or a packet cut by the box edge")
     phase = run.grid_phase
     if phase > math.pi:
-        top = timestep.band_top(info, float(np.min(run.V)), hbar, m)
-        h = timestep.sharpness(run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]), 2 * top)
+        h = timestep.sharpness(run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]), 0.0)
         bias = timestep.time_error(h, run.dt, hbar)
         if bias > TIME_BIAS_WARN:
             warnings.append(f"the time step is large for the potential's sharp features: "
