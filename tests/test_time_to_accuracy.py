@@ -106,7 +106,7 @@ def test_a_step_that_aliases_the_band_itself_is_refused():
 def reflection_predictions(k0, sigma):
     """Packet averages of the unit step's reflection delays below the top: dφ/dk = 2/κ,
     κ = √(2(V₀ − E)) (Cohen-Tannoudji, Diu, Laloë, Complement H_I), weights |ψ̃₀(k)|²:
-    the centroid ⟨dφ/dk⟩/v₀ and the arrival ⟨(dφ/dk)/v(k)⟩ (PHYSICS §5)."""
+    the centroid ⟨dφ/dk⟩/v₀, the arrival and spectral ⟨(dφ/dk)/v(k)⟩ (PHYSICS §5)."""
     sk = 1 / (2 * sigma)
     lo, hi = k0 - 8 * sk, min(k0 + 8 * sk, math.sqrt(2.0) * 0.999)
 
@@ -119,7 +119,8 @@ def reflection_predictions(k0, sigma):
     norm = integrate.quad(weight, lo, hi, epsrel=1e-12)[0]
     centroid = integrate.quad(lambda k: weight(k) * dphi(k), lo, hi, epsrel=1e-12)[0] / norm / k0
     arrival = integrate.quad(lambda k: weight(k) * dphi(k) / k, lo, hi, epsrel=1e-12)[0] / norm
-    return {"centroid": centroid, "arrival": arrival, "spectral": centroid}
+    # the spectral method reads τ(E) = ħ dφ/dE = (dφ/dk)/v(k) per component (PHYSICS §5)
+    return {"centroid": centroid, "arrival": arrival, "spectral": arrival}
 
 
 def test_the_filter_keeps_the_arrival_method_right_past_the_grid_limit():
@@ -192,3 +193,47 @@ def test_bad_accuracy_is_a_one_line_error(write_scenario, capsys, value):
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err
     assert f"{path}:6:" in err and "evolve.accuracy" in err and "Traceback" not in err
+
+
+BARRIER = """\
+units: atomic
+grid: {span: [-500.0, 500.0], points: auto}
+potential:
+  - barrier: {start: 0.0, end: 2.0, height: 1.0}
+packet: {center: -200.0, width: 20.0, energy: 0.5}
+evolve: {duration: auto, accuracy: 1e-3}
+absorber: {width: 60.0}
+record: {every: 10.0}
+"""
+
+
+def barrier_predictions(k0, sigma):
+    """Packet averages for the rectangular barrier from its published amplitudes
+    (Griffiths, Introduction to Quantum Mechanics, 2nd ed., Problem 2.33; ħ = m = 1,
+    V₀ = 1, a = 2): the transmitted centroid ⟨T dφ_t/dk⟩/⟨T⟩/v₀, with the
+    transmitted phase measured from x = 0 to x = a (φ_t = arg t + ka)."""
+    sk = 1 / (2 * sigma)
+    k = np.linspace(k0 - 8 * sk, k0 + 8 * sk, 4001)
+    kappa = np.sqrt(2 * (1.0 - k ** 2 / 2) + 0j)
+    a = 2.0
+    t = np.exp(-1j * k * a) / (np.cosh(kappa * a) + 1j * (kappa ** 2 - k ** 2) /
+                               (2 * k * kappa) * np.sinh(kappa * a))
+    phase = np.unwrap(np.angle(t)) + k * a
+    w = np.exp(-((k - k0) ** 2) / (2 * sk ** 2)) * np.abs(t) ** 2
+    return float(np.sum(w * np.gradient(phase, k)) / np.sum(w)) / k0
+
+
+@pytest.mark.slow
+def test_accuracy_1e3_holds_on_the_unit_step_and_a_barrier():
+    s = build(loads(STEP.format(points="auto", evolve=", accuracy: 1e-3"), "auto.yaml"))
+    expected = reflection_predictions(abs(s.packet.k0), 20.0)
+    measured = measure_delays(run_in_memory(s)).reflection.measured
+    for method, value in expected.items():
+        assert measured[method].delay == pytest.approx(value, rel=1e-3), method
+    b = build(loads(BARRIER, "barrier.yaml"))
+    report = measure_delays(run_in_memory(b))
+    assert report.transmission.measured["centroid"].delay == pytest.approx(
+        barrier_predictions(1.0, 20.0), rel=1e-3)
+    for channel in report.channels():          # every method against its own average
+        for method, result in channel.measured.items():
+            assert abs(result.relative) < 1e-3, (channel.channel, method, result.relative)
