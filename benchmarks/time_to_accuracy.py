@@ -155,7 +155,13 @@ def main(argv=None) -> None:
     parser.add_argument("--calibrate", type=float, nargs=2, default=None,
                         metavar=("POINTS", "DT"), help="CN calibration grid and step")
     parser.add_argument("--max-cn-tries", type=int, default=4)
+    parser.add_argument("--sojourn-only", action="store_true",
+                        help="only sojourn's runs (to set beside a saved Crank–Nicolson run)")
     args = parser.parse_args(argv)
+    if args.sojourn_only:
+        for target in args.targets:
+            print(json.dumps(sojourn_run(args.case, target)), flush=True)
+        return
     defaults = {"step": (8192, 0.05), "heterojunction": (4096, 0.5)}
     points0, dt0 = args.calibrate or defaults[args.case]
     a, b, runs = fit_crank_nicolson(args.case, int(points0), float(dt0))

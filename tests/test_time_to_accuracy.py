@@ -84,8 +84,8 @@ def test_a_jump_couples_with_its_height_at_every_wavenumber():
 def test_default_time_step_follows_the_jump_on_fine_grids_and_the_grid_on_coarse_ones():
     fine, coarse = build(step(16384)), build(step(1024))
     grid_rule = math.pi / 2 / (fine.grid.kinetic_max(1.0, 1.0) + 1.0)
-    # (h Δt/ħ)² = 1e-4 with h = 1: Δt = 0.01, far above the grid rule at 16384 points
-    assert fine.dt_chosen and fine.dt == pytest.approx(0.01, rel=0.02)
+    # bias bound max(2x², 2e4·x⁴) = 1e-4, x = hΔt/ħ, h = 1: Δt = 0.00707, far above the grid rule
+    assert fine.dt_chosen and fine.dt == pytest.approx(math.sqrt(0.5e-4), rel=0.02)
     assert fine.dt > 20 * grid_rule and fine.flux_band is not None
     assert not fine.errors() and not fine.warnings()
     # on a coarse grid the grid rule (Δt·(E_max + ΔV)/ħ = π/2) is the larger: unchanged

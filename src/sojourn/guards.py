@@ -272,11 +272,11 @@ def _time_step(s, limit: float, add) -> None:
     if phase <= math.pi:
         return
     bias = timestep.bias(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass, s.dt)
-    h = math.sqrt(bias / timestep.LEAK_COEFFICIENT) * s.hbar / s.dt   # the sharpness it saw
+    h = timestep.sharpness(s.V, s.grid.dx, s.potential.support(), s.grid.left, 0.0)
     grid_limit = time_step_limit(s.grid.kinetic_max(s.hbar, s.mass), float(np.ptp(s.V)), s.hbar)
     if phase >= 2 * math.pi and bias > RENDERING_WARN_LEVEL:
-        allowed = min(max(grid_limit, math.sqrt(RENDERING_WARN_LEVEL / timestep.LEAK_COEFFICIENT)
-                          * s.hbar / h), limit)
+        allowed = min(max(grid_limit, timestep.largest_dt(h, RENDERING_WARN_LEVEL, s.hbar)),
+                      limit)
         add(Finding("error", "evolve.dt",
                     f"dt = {s.dt:g} is past the grid limit Δt·(E_max + V_max − V_min)/ħ < 2π "
                     f"(here {phase:.3g}) and the potential's sharp features (height {h:.3g}) "

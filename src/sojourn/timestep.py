@@ -12,9 +12,9 @@ benchmarks/dt_scan.py:
 2. fast sideband components cross the detectors and swamp the flux: the
    detectors read the state filtered to the band (`flux_band`), which is
    exact for the band and blind to the sidebands;
-3. the probability fed into the sidebands biases every delay by about
-   LEAK_COEFFICIENT·(h_eff·Δt/ħ)² (relative), h_eff the sharpness of V at the
-   sidebands' wavenumbers (`sharpness`): the default Δt keeps this below
+3. the sidebands bias every delay by up to the larger of
+   LEAK_COEFFICIENT·x² and RESONANT_COEFFICIENT·x⁴ (relative), x = h_eff·Δt/ħ,
+   h_eff the sharpness of V (`sharpness`): the default Δt keeps this below
    DEFAULT_TIME_ERROR, and never goes below the old grid rule."""
 from __future__ import annotations
 
@@ -26,8 +26,12 @@ import numpy as np
 BAND_WIDTHS = 8.0          # the populated band: |k₀| ± 8σ_k (|ψ̃₀|² below e^-32 beyond)
 GRID_PHASE = math.pi / 2   # the grid rule: Δt·(E_max + ΔV)/ħ = π/2 (no sideband on the grid)
 BAND_PHASE = math.pi / 4   # the band rule: Δt·(E_top + ΔV)/ħ ≤ π/4 (in-band splitting error)
-LEAK_COEFFICIENT = 1.0     # relative delay bias ≈ (h_eff Δt/ħ)²: the unit step gave 0.3–0.4,
-                           # the barrier 0.1–0.9 (benchmarks/dt_scan.py); the largest, rounded up
+LEAK_COEFFICIENT = 2.0     # relative delay bias ≲ 2·(h_eff Δt/ħ)²: the unit step gave 0.3–0.4 on a
+                           # coarse scan, the barrier 0.1–0.9, and a fine scan in Δt on the unit
+                           # step (N = 16384) a spread of 2·(hΔt)² at Δt ≈ 0.01 ...
+RESONANT_COEFFICIENT = 2e4  # ... that grows as (hΔt)⁴ further up: ±2.6e-3 at Δt ≈ 0.02, changing
+                           # sign within 0.1 % of Δt (the sidebands' waves interfere with the
+                           # packet: their phase ∝ 1/Δt); the bias bound is the larger of the two
 SIDEBAND_SHARE = 0.3       # probability the sidebands carry off ≈ 0.3·(h_eff Δt/ħ)² at most (the
                            # unit step: 0.03–0.1 near the default Δt, up to 0.3 far past it)
 DEFAULT_TIME_ERROR = 1e-4  # the default Δt aims at this relative bias from the sidebands
@@ -92,8 +96,18 @@ def sharpness(V: np.ndarray, dx: float, support, x_left: float, q_min: float) ->
 
 
 def time_error(h_eff: float, dt: float, hbar: float) -> float:
-    """The estimated relative delay bias from the sidebands at this Δt."""
-    return LEAK_COEFFICIENT * (h_eff * dt / hbar) ** 2
+    """The estimated relative delay bias at this Δt: the larger of
+    LEAK_COEFFICIENT·x² and RESONANT_COEFFICIENT·x⁴, x = h_eff·Δt/ħ."""
+    x2 = (h_eff * dt / hbar) ** 2
+    return max(LEAK_COEFFICIENT * x2, RESONANT_COEFFICIENT * x2 * x2)
+
+
+def largest_dt(h_eff: float, target: float, hbar: float) -> float:
+    """The largest Δt with time_error ≤ target (inf for a potential without features)."""
+    if h_eff <= 0:
+        return math.inf
+    x = min(math.sqrt(target / LEAK_COEFFICIENT), (target / RESONANT_COEFFICIENT) ** 0.25)
+    return x * hbar / h_eff
 
 
 def grid_rule(kinetic_max: float, v_range: float, hbar: float) -> float:
@@ -123,7 +137,7 @@ def choose(grid, info, V, support, hbar, mass, target: float = DEFAULT_TIME_ERRO
     band_dt = BAND_PHASE * (2.0 if order >= 4 else 1.0) * hbar / e_band
     safe_dt = grid_rule(grid.kinetic_max(hbar, mass), float(np.ptp(V)), hbar)
     h = sharpness(V, grid.dx, support, grid.left, 0.0)
-    leak_dt = math.sqrt(target / LEAK_COEFFICIENT) * hbar / h if h > 0 else math.inf
+    leak_dt = largest_dt(h, target, hbar)
     dt = max(safe_dt, min(band_dt, leak_dt))
     return dt, time_error(h, dt, hbar)
 
