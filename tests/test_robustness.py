@@ -181,9 +181,9 @@ def test_a_grid_larger_than_memory_is_refused_before_any_allocation(write_scenar
 
 def test_a_terabyte_of_snapshots_is_refused(write_scenario, capsys):
     # 2^16 points × 16 B = 1 MiB a snapshot; over 10^6 snapshots is over 1 TiB
-    # (dt is chosen: about 2.7e-5 here, so 1.5 million steps, each recorded)
+    # (dt = 2.7e-5, the grid rule's step here: 1.5 million steps, each recorded)
     text = SMALL.replace("points: 512", "points: 65536").replace(
-        "evolve: {duration: 40.0, dt: 0.05}", "evolve: {duration: 40.0}").replace(
+        "evolve: {duration: 40.0, dt: 0.05}", "evolve: {duration: 40.0, dt: 2.7e-5}").replace(
         "record: {every: 5.0}", "record: {every: 1.0e-9}")
     path = write_scenario(text)
     setup = build(loads(text, str(path)))

@@ -18,10 +18,12 @@ from .engine.propagate import TimeDependence
 from .config.scenario import Scenario
 from .errors import ScenarioError, SojournError
 from .theory.scattering import scatter
-from .guards import (DEFAULT_DT_PHASE, Finding, guard, refuse_endless, refuse_oversized,
-                     time_step_limit)
+from .guards import Finding, guard, refuse_endless, refuse_oversized, time_step_limit
 from .guards_drive import STEPS_PER_PERIOD, drive_findings
 from .planar import guard_plane, plane_absorber, plane_point, plane_values
+from .timestep import GRID_PHASE, band_energy_range, choose as choose_dt, flux_band
+from .engine.propagate import ORDER
+from .accuracy import plan_findings, plan_scenario
 
 
 @dataclass
@@ -45,6 +47,14 @@ class Setup:
     findings: list = field(default_factory=list)
     drive: Optional[TimeDependence] = None     # what V gains in time; None: static
     transverse: Optional[packets.PacketInfo] = None   # in the plane: the motion along y
+    flux_band: Optional[tuple[float, float]] = None   # (k_pass, k_stop) of the detectors' filter
+    dt_error: float = 0.0     # a chosen Δt's estimated relative delay bias (timestep.choose)
+    accuracy: Optional[object] = None   # the accuracy.Plan, when evolve.accuracy / auto chose
+
+    @property
+    def band_phase(self) -> float:
+        """Δt·(E_top + ΔV)/ħ over the populated band: must stay below 2π."""
+        return self.dt * band_energy_range(self.packet, self.V, self.hbar, self.mass) / self.hbar
 
     @property
     def hbar(self) -> float:
@@ -333,11 +343,15 @@ def build(scenario: Scenario) -> Setup:
 
 def _build(scenario: Scenario) -> Setup:
     findings: list[Finding] = []
+    hbar, mass = scenario.hbar, scenario.particle_mass
+    potential = scenario.build_potential()
+    plan = None
+    if scenario.grid.points == "auto" or scenario.evolve.accuracy is not None:
+        plan, scenario = plan_scenario(scenario, potential, _reference)
+        potential = scenario.build_potential()   # sampled at the chosen grid's spacing
     refuse_oversized(scenario)
     plane = scenario.dimensions == 2
     grid = PlaneGrid.from_spec(scenario.grid) if plane else Grid.from_spec(scenario.grid)
-    hbar, mass = scenario.hbar, scenario.particle_mass
-    potential = scenario.build_potential()
     V = plane_values(scenario.terms, grid, mass) if plane else potential.on_grid(grid.x, grid.dx)
     if not np.all(np.isfinite(V)):
         bad = np.broadcast_to(grid.x, V.shape)[~np.isfinite(V)][0]
@@ -366,11 +380,22 @@ def _build(scenario: Scenario) -> Setup:
                             f"energy ħ²k_max²/2m = {kinetic_max:g} plus the range of V "
                             f"({v_range:g}) is not a usable number; check mass, grid and potential")
     clock = _clock(scenario, potential)
-    if clock is not None:   # the spin components' levels reach ħω_L/2 above and below V
-        v_range += hbar * clock[1]
-    limit = time_step_limit(kinetic_max, v_range, hbar)
+    # the spin components' levels reach ħω_L/2 above and below V
+    split = hbar * clock[1] if clock is not None else 0.0
+    dt_error = 0.0
+    if plane:   # the populated band's rules are worked out on a line: the grid rule here
+        limit = time_step_limit(kinetic_max, v_range, hbar)
+    else:
+        limit = time_step_limit(band_energy_range(info, V, hbar, mass) + split, 0.0, hbar)
     if scenario.evolve.dt is None:
-        dt = DEFAULT_DT_PHASE * hbar / (kinetic_max + v_range)
+        if plan is not None:
+            dt, dt_error = plan.dt, plan.time_error
+        elif plane:
+            dt = GRID_PHASE * hbar / (kinetic_max + v_range)
+        else:
+            dt, dt_error = choose_dt(grid, info, V, None if potential.confining
+                                     else potential.support(), hbar, mass,
+                                     order=ORDER[scenario.evolve.scheme])
         dt = min([dt] + [d.period / STEPS_PER_PERIOD for d, _ in potential.drives()])
         dt_chosen = True
     else:
@@ -429,9 +454,13 @@ def _build(scenario: Scenario) -> Setup:
         findings += _clock_findings(clock[0], grid, absorber_width, info)
     drive = TimeDependence.of_potential(potential, grid.x, grid.dx) if potential.driven else None
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
-                  sample_steps, detectors, reference, region, findings, drive, transverse)
+                  sample_steps, detectors, reference, region, findings, drive, transverse,
+                  None if plane else flux_band(grid, info, V, hbar, mass, dt), dt_error)
     (guard_plane if plane else guard)(setup, limit, absorber_width)
     drive_findings(setup)
+    if plan is not None:
+        setup.findings.extend(plan_findings(plan, setup.scenario))
+        setup.accuracy = plan
     for finding in findings:
         finding.line = scenario.line_of(finding.key)
     return setup

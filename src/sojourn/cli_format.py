@@ -32,8 +32,11 @@ def format_check(scenario, setup) -> list:
            f"{setup.transverse.width:g}, k_y = {setup.transverse.k0:.5g})"
            if setup.transverse is not None else ""),
         f"time       dt = {setup.dt:.4g} {units.time}{' (chosen)' if setup.dt_chosen else ''}, "
-        f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_max+ΔV)/ħ = "
-        f"{setup.grid_phase:.3g} (limit 2π, safe below π); scheme {scenario.evolve.scheme}",
+        f"{setup.steps} steps to t = {setup.duration:g}; Δt·(E_top+ΔV)/ħ = "
+        f"{setup.band_phase:.3g} over the packet's band (limit 2π), Δt·(E_max+ΔV)/ħ = "
+        f"{setup.grid_phase:.3g} on the grid"
+        f"{' (detectors read the band-filtered state)' if setup.flux_band else ''}; "
+        f"scheme {setup.scenario.evolve.scheme}",
         f"recording  every {setup.record_steps} steps ({setup.record_steps * setup.dt:.4g} "
         f"{units.time}), {setup.snapshots} snapshots; samples every {setup.sample_steps} steps",
         f"measure    reference {setup.reference:g}; detectors "

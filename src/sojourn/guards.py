@@ -20,6 +20,7 @@ from .theory.scattering import scatter
 from .engine.propagate import Propagator
 from .model.grid import Grid
 from .store import layout
+from . import timestep
 from .store.paths import output_path
 
 # A run's peak memory, fitted to peaks measured with `python -m sojourn run` at
@@ -33,7 +34,6 @@ ROW_OVERHEAD = 96          # per ψ row: its chunk's index entry and checksum (m
 MAX_RUN_SECONDS = 30 * 86400   # a longer estimated run is refused without --force
 CALIBRATION = {"points": 4096, "steps": 300}
 RESOLUTION_MARGIN = 2.0   # k_max ≥ margin·(|k₀| + 6σ_k)  (common practice, no source)
-DEFAULT_DT_PHASE = math.pi / 2  # default Δt·(E_max + ΔV)/ħ, well inside the limit of 2π
 RENDERING_WARN = 1e-3     # the relative change of R, T or a delay a resolved run aims at
 RENDERING_WARN_LEVEL = 1e-2  # ... and the one that calls for a warning
 MAX_RENDERED_CELLS = 20000  # larger supports are not re-solved cell by cell
@@ -46,7 +46,8 @@ DWELL_WARN = 3e-2         # an expected dwell error that calls for a warning
 
 
 def time_step_limit(kinetic_max: float, v_range: float, hbar: float) -> float:
-    """Largest Δt with Δt·(E_max + V_max - V_min)/ħ < 2π (PHYSICS §3)."""
+    """Largest Δt with Δt·(E + V_max - V_min)/ħ < 2π (PHYSICS §3): E the grid's
+    E_max for the grid limit, the populated band's E_top for the hard limit."""
     return 2 * math.pi * hbar / (kinetic_max + v_range)
 
 
@@ -172,20 +173,7 @@ def guard(s, limit: float, absorber_width: float) -> None:
                     f"k₀/σ_k = {info.k_ratio:.3g} < 6: the packet has content near k = 0, where "
                     "delays diverge; make the packet wider or faster"))
 
-    # the time step against the grid limit
-    phase = s.grid_phase
-    if s.dt_chosen:
-        add(Finding("info", "evolve.dt", f"no dt given: using dt = {s.dt:.4g} {units.time} "
-                    f"(Δt·(E_max+ΔV)/ħ = {phase:.3g}, limit 2π)"))
-    if phase >= 2 * math.pi:
-        add(Finding("error", "evolve.dt",
-                    f"dt = {s.dt:g} is past the grid limit Δt·(E_max + V_max − V_min)/ħ < 2π "
-                    f"(here {phase:.3g}); the largest allowed is {limit:.4g} {units.time}, "
-                    f"and {limit / 2:.4g} is safe", forceable=True))
-    elif phase > math.pi:
-        add(Finding("warning", "evolve.dt",
-                    f"Δt·(E_max + ΔV)/ħ = {phase:.3g} is above π: sharp features may feed "
-                    f"spurious high-k components; dt ≤ {limit / 2:.4g} is safe"))
+    _time_step(s, limit, add)
 
     # the packet inside the box, clear of absorbers and the potential
     inner = (grid.left + absorber_width, grid.right - absorber_width)
@@ -239,10 +227,13 @@ def guard(s, limit: float, absorber_width: float) -> None:
 
     for x_jump in s.potential.jumps():
         offset = ((x_jump - grid.left) / grid.dx) % 1.0
-        if abs(offset - 0.5) > 1e-6:
+        off_point = min(offset, 1 - offset)
+        if off_point > 1e-6:
             add(Finding("info", "potential",
-                        f"the jump at x = {x_jump:g} is {abs(offset - 0.5):.2f}·dx off the midpoint "
-                        "between grid points: its cell is averaged so its position is kept"))
+                        f"the jump at x = {x_jump:g} is {off_point:.2f}·dx from the nearest grid "
+                        "point: its cell is averaged so its position is kept, but halving dx "
+                        "moves it within its cell (the Δx² error then changes irregularly with "
+                        "N); grid.points: auto puts the first jump on a grid point"))
             break
 
     # memory, disk and run time
@@ -266,6 +257,51 @@ def guard(s, limit: float, absorber_width: float) -> None:
     s.findings.append(Finding("info", "", f"estimated memory {_size(memory)}, run file "
                                           f"{at_most}{_size(disk)} ({s.snapshots} snapshots), "
                                           f"run time {_duration(seconds)} here"))
+
+
+def _time_step(s, limit: float, add) -> None:
+    """The time step against the packet's band (a hard limit: 2π over the band)
+    and, past the grid limit, against the bias the sidebands it opens at sharp
+    features cause (PHYSICS §3, "Time step and the populated band")."""
+    phase, band_phase, units = s.grid_phase, s.band_phase, s.scenario.unit_system
+    safe, _ = timestep.choose(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass)
+    if s.dt_chosen:
+        bias = f", estimated bias ≤ {s.dt_error:.1e}" if s.dt_error else ""
+        add(Finding("info", "evolve.dt",
+                    f"no dt given: using dt = {s.dt:.4g} {units.time} (Δt·(E_top+ΔV)/ħ = "
+                    f"{band_phase:.3g} over the packet's band, limit 2π; Δt·(E_max+ΔV)/ħ = "
+                    f"{phase:.3g} on the grid{bias})"))
+    if band_phase >= 2 * math.pi:
+        add(Finding("error", "evolve.dt",
+                    f"dt = {s.dt:g} aliases the packet's own band: Δt·(E_top + V_max − V_min)/ħ "
+                    f"= {band_phase:.3g} ≥ 2π (E_top the kinetic energy at |k₀| + 8σ_k); the "
+                    f"largest allowed is {limit:.4g} {units.time}, and {safe:.4g} is safe",
+                    forceable=True))
+        return
+    if phase <= math.pi:
+        return
+    bias = timestep.bias(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass, s.dt)
+    h = timestep.sharpness(s.V, s.grid.dx, s.potential.support(), s.grid.left, 0.0)
+    grid_limit = time_step_limit(s.grid.kinetic_max(s.hbar, s.mass), float(np.ptp(s.V)), s.hbar)
+    if phase >= 2 * math.pi and bias > RENDERING_WARN_LEVEL:
+        allowed = min(max(grid_limit, timestep.largest_dt(h, RENDERING_WARN_LEVEL, s.hbar)),
+                      limit)
+        add(Finding("error", "evolve.dt",
+                    f"dt = {s.dt:g} is past the grid limit Δt·(E_max + V_max − V_min)/ħ < 2π "
+                    f"(here {phase:.3g}) and the potential's sharp features (height {h:.3g}) "
+                    f"feed the spurious components this opens enough to bias delays by about "
+                    f"{bias:.1e}; the largest allowed is {allowed:.4g} {units.time}, and "
+                    f"{safe:.4g} is safe", forceable=True))
+    elif bias > (s.scenario.evolve.accuracy or RENDERING_WARN) or band_phase > math.pi:
+        add(Finding("warning", "evolve.dt",
+                    f"Δt·(E_max + ΔV)/ħ = {phase:.3g} is above π: sharp features feed spurious "
+                    f"high-k components (estimated relative bias {bias:.1e}); dt ≤ {safe:.4g} "
+                    "is safe"))
+    elif s.dt_chosen or phase >= 2 * math.pi:
+        add(Finding("info", "evolve.dt",
+                    f"Δt·(E_max + ΔV)/ħ = {phase:.3g}: the grid holds the time step's sidebands; "
+                    f"the detectors read the state filtered to the packet's band (estimated "
+                    f"relative bias {bias:.1e})"))
 
 
 def _output_dir(scenario) -> Path:
@@ -314,6 +350,12 @@ def rendered_potential(x: np.ndarray, V: np.ndarray, dx: float, support, mass: f
 
 
 def rendering_error(s) -> Optional[dict]:
+    """`grid_rendering_error` of a Setup."""
+    return grid_rendering_error(s.potential, s.packet, s.grid.x, s.V, s.grid.dx, s.hbar, s.mass,
+                                s.reference)
+
+
+def grid_rendering_error(potential, info, x, V, dx, hbar, mass, reference) -> Optional[dict]:
     """How much the packet's R, T and flux-weighted delays ⟨τ_R⟩, ⟨τ_T⟩ change
     when the stationary theory is solved on the grid's rendering of V instead
     of the exact V: an estimate of the part of a run's error that comes from
@@ -321,12 +363,12 @@ def rendering_error(s) -> Optional[dict]:
     grid's own error at a jump is not in it). Relative changes (delays
     relative to |τ| + 1 % of a passage time). None where it cannot be estimated
     (a trap, no support, a support of too many cells, a delta term)."""
-    potential, info = s.potential, s.packet
     support = potential.support()
     if potential.confining or support is None or potential.deltas():
         return None
-    V = s.V if s.V.ndim == 1 else s.V.mean(axis=0)   # a spinor's components: V ± ħω_L/2
-    rendered = rendered_potential(s.grid.x, V, s.grid.dx, support, s.mass)
+    V = np.asarray(V)
+    V = V if V.ndim == 1 else V.mean(axis=0)   # a spinor's components: V ± ħω_L/2
+    rendered = rendered_potential(x, V, dx, support, mass)
     if rendered is None:
         return None
     staircase, left = rendered
@@ -337,7 +379,7 @@ def rendering_error(s) -> Optional[dict]:
     k = k0 + 6 * info.sigma_k * nodes
     w = weights * np.exp(-0.5 * ((k - k0) / info.sigma_k) ** 2)
     keep = k > 0.05 * k0
-    energies = info.level + (s.hbar * k[keep]) ** 2 / (2 * s.mass)
+    energies = info.level + (hbar * k[keep]) ** 2 / (2 * mass)
     w = w[keep]
     inc = potential.levels()[0 if direction == "right" else 1]
     above = energies > inc
@@ -345,9 +387,9 @@ def rendering_error(s) -> Optional[dict]:
     if energies.size < 4:
         return None
     try:
-        exact = scatter(potential, energies, hbar=s.hbar, x_r=s.reference, direction=direction,
+        exact = scatter(potential, energies, hbar=hbar, x_r=reference, direction=direction,
                         dwell=False)
-        grid = scatter(staircase, energies - left, hbar=s.hbar, x_r=s.reference,
+        grid = scatter(staircase, energies - left, hbar=hbar, x_r=reference,
                        x_t=exact.x_t, direction=direction, dwell=False)
     except (SojournError, ValueError, FloatingPointError):
         return None

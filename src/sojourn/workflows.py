@@ -180,6 +180,8 @@ def _clock_error_bars(channel: str, block: dict, reruns: dict, order: int, moves
         moves[f"{channel}.larmor.{key}"] = {"grid": values.get("grid", math.nan) - base,
                                             "time": values.get("time", math.nan) - base,
                                             "error": block[key]["error"]}
+
+
 def _sideband_errors(channel, base, reruns, order, moves) -> None:
     """A driven run: each sideband probability's Richardson error, as for the delays."""
     if not base.sidebands:
@@ -197,6 +199,26 @@ def _sideband_errors(channel, base, reruns, order, moves) -> None:
             "time": math.nan if time is None else time - p, "error": row["error"]}
 
 
+def _against_accuracy(report: DelayReport, target: Optional[float]) -> None:
+    """Set each delay's error bar beside a requested evolve.accuracy: a warning
+    for each above it, a note when all are within it."""
+    if target is None:
+        return
+    over = []
+    for channel in report.channels():
+        for method, result in channel.measured.items():
+            if result.error is not None and result.delay:
+                relative = result.error / abs(result.delay)
+                if relative > target:
+                    over.append(f"{channel.channel} {method} ±{relative:.1e}")
+    if over:
+        report.warnings.append(f"verify: above the requested accuracy {target:g} (relative "
+                               f"error bars): {', '.join(over)}")
+    else:
+        report.notes.append(f"verify: every delay's error bar is within the requested "
+                            f"accuracy {target:g}")
+
+
 def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
            keep: Optional[Path] = None) -> Convergence:
     """Rerun the scenario of a run file on a 2× finer grid with Δt/4 and at Δt/2
@@ -212,18 +234,29 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
         scenario = rf.scenario()
         dt = float(rf.attrs["dt"])
         scheme = str(rf.attrs["scheme"])
-    points = scenario.grid.points
-    # in the plane the error is the normal motion's (y is free and exact): refine x alone
-    finer = [2 * points[0], points[1]] if scenario.dimensions == 2 else 2 * points
+        x = np.asarray(rf.x, float)
+    # the run's own grid (an auto grid's points and aligned span), refined by halving dx; in
+    # the plane the error is the normal motion's (y is free and exact): x alone is refined
+    points = len(x)
+    span = [float(x[0]), float(x[0] + points * (x[1] - x[0]))]
+    if scenario.dimensions == 2:
+        ny, y_span = scenario.grid.points[1], list(scenario.grid.span[1])
+
+        def grid_keys(n):
+            return {"grid.points": [n, ny], "grid.span": [span, y_span]}
+    else:
+        def grid_keys(n):
+            return {"grid.points": n, "grid.span": span}
     order = ORDER[scheme]
     folder = Path(keep) if keep else Path(tempfile.mkdtemp(prefix="sojourn-verify-"))
     folder.mkdir(parents=True, exist_ok=True)
     try:
         reruns = {}
         plans = {
-            "grid": ({"grid.points": finer, "evolve.dt": dt / 4},
-                     f"rerun 1/2: {finer} points, dt = {dt / 4:.4g} (about 8× the base run)"),
-            "time": ({"evolve.dt": dt / 2},
+            "grid": ({**grid_keys(2 * points), "evolve.dt": dt / 4, "evolve.scheme": scheme},
+                     f"rerun 1/2: {2 * points} points along x, dt = {dt / 4:.4g} (about 8× the "
+                     "base run)"),
+            "time": ({**grid_keys(points), "evolve.dt": dt / 2, "evolve.scheme": scheme},
                      f"rerun 2/2: dt = {dt / 2:.4g} (about 2× the base run)"),
         }
         for name, (changes, message) in plans.items():
@@ -261,6 +294,7 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
             _sideband_errors(channel, b, reruns, order, moves)
             _shift_error(b, {name: getattr(rep, channel) for name, rep in reruns.items()},
                          order)
+        _against_accuracy(base, scenario.evolve.accuracy)
         return Convergence(base, reruns["grid"], reruns["time"], moves)
     finally:
         if keep is None:

@@ -38,6 +38,9 @@ def dimension_problem(scenario) -> Optional[tuple[tuple, str]]:
             kind = next(iter(type(item).model_fields))
             return ("potential", index, kind) + (("drive",) if term.drive is not None else ()), (
                 "a potential that changes in time runs on a line only (one grid axis)")
+    if plane and scenario.evolve.accuracy is not None:
+        return ("evolve", "accuracy"), ("a requested accuracy chooses the grid and step on a "
+                                        "line only; in the plane give points and dt")
     if plane and scenario.larmor is not None:
         return ("larmor",), "a Larmor clock runs on a line only (one grid axis)"
     return None

@@ -42,17 +42,24 @@ def _per_axis_kind(value) -> str:
     return "Plane" if isinstance(value, (list, tuple)) else "Line"
 
 
+def _auto_word(value):
+    """'auto' in any case stays the word; anything else is validated as a number."""
+    return value.strip().lower() if isinstance(value, str) and value.strip().lower() == "auto" \
+        else value
+
+
 Range = tuple[float, float]
 Count = Annotated[int, Field(ge=16, description="number of grid points")]
 
 
 class GridSpec(_Strict):
-    """One axis: span [left, right], points N. Two (the plane): span
-    [[x0, x1], [y0, y1]], points [Nx, Ny]."""
+    """One axis: span [left, right], points N or 'auto' (as many as evolve.accuracy
+    needs, chosen by build). Two (the plane): span [[x0, x1], [y0, y1]], points [Nx, Ny]."""
 
     span: Annotated[Union[Annotated[Range, Tag("Line")],
                           Annotated[tuple[Range, Range], Tag("Plane")]], Discriminator(_pair_kind)]
-    points: Annotated[Union[Annotated[Count, Tag("Line")],
+    points: Annotated[Union[Annotated[Union[Count, Literal["auto"]], BeforeValidator(_auto_word),
+                                      Tag("Line")],
                             Annotated[tuple[Count, Count], Tag("Plane")]],
                       Discriminator(_per_axis_kind)]
 
@@ -81,11 +88,16 @@ class GridSpec(_Strict):
         return self.points[0] if self.dimensions == 2 else self.points
 
     @property
-    def total_points(self) -> int:
+    def total_points(self) -> Optional[int]:
+        """All the grid's points; None for points: auto (build chooses them)."""
+        if self.points == "auto":
+            return None
         return self.points[0] * self.points[1] if self.dimensions == 2 else self.points
 
     @property
     def dx(self) -> float:
+        if self.points == "auto":
+            raise ValueError("grid.points: auto has no spacing until build chooses the points")
         return (self.x_span[1] - self.x_span[0]) / self.x_points
 
 
@@ -140,6 +152,9 @@ class EvolveSpec(_Strict):
     dt: Optional[float] = Field(default=None, gt=0)
     scheme: Literal["strang", "yoshida4"] = "strang"
     precision: Literal["double", "single"] = "double"
+    # the relative error every reported delay should reach: build chooses dt (and, with
+    # grid.points: auto, the points and the scheme) for it at least cost
+    accuracy: Optional[float] = Field(default=None, ge=1e-6, le=0.1)
 
 
 class AbsorberSpec(_Strict):
@@ -251,9 +266,11 @@ class Scenario(_Strict):
 
     def build_potential(self) -> pot.Potential:
         """The potential along x (in the plane: the terms that depend on x alone;
-        a shape or a formula in y makes it `Potential.along_x` False)."""
+        a shape or a formula in y makes it `Potential.along_x` False). With
+        grid.points: auto it samples at the potential's own default until build
+        has chosen the points."""
         return pot.Potential(self.terms, mass=self.particle_mass, span=self.grid.x_span,
-                             spacing=self.grid.dx / 4)
+                             spacing=None if self.grid.points == "auto" else self.grid.dx / 4)
 
     @property
     def dimensions(self) -> int:

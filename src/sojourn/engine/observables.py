@@ -39,25 +39,65 @@ def fornberg_weights(z: float, nodes: np.ndarray, order: int) -> np.ndarray:
     return c
 
 
+BAND_EDGE = 6.0   # transition half-widths between the pass band's top and the window's
+                  # middle: the window is 1 − 1e-9 at the top and 1e-9 at the stop edge
+KERNEL_REACH = 8.6  # the filter kernel's e^(−δk²x²/2) is below 1e-16 beyond 8.6/δk
+
+
+def band_kernel(offsets: np.ndarray, k_pass: float, k_stop: float) -> tuple:
+    """Value and slope weights g(z − x_j), g′(z − x_j) of the smooth low-pass
+    filter whose window in k is ½erfc((|k| − k_m)/(√2 δk)), k_m midway between
+    k_pass and k_stop, δk = (k_stop − k_pass)/(2·BAND_EDGE): the box of half-width
+    k_m convolved with a normal of width δk, so g(u) = sin(k_m u)/(πu)·e^(−δk²u²/2).
+    `offsets` are u = z − x_j."""
+    k_m, dk = 0.5 * (k_pass + k_stop), (k_stop - k_pass) / (2 * BAND_EDGE)
+    u = np.asarray(offsets, dtype=float)
+    gauss = np.exp(-0.5 * (dk * u) ** 2)
+    small = np.abs(u) < 1e-8 / max(k_m, 1e-300)
+    safe = np.where(small, 1.0, u)
+    sinc = np.where(small, k_m / math.pi, np.sin(k_m * safe) / (math.pi * safe))
+    dsinc = np.where(small, 0.0, (k_m * np.cos(k_m * safe) - np.sin(k_m * safe) / safe)
+                     / (math.pi * safe))
+    return sinc * gauss, (dsinc - dk ** 2 * u * sinc) * gauss
+
+
 class Detectors:
     """Probability current J = (ħ/m) Im(ψ* ∂ψ/∂x) at fixed positions, from
     local 16-point interpolation stencils (no FFT, O(1) per detector). In the
     plane a detector is the line x = const and its flux is J_x summed over
     the line (times dy: the grid's cell over dx).
 
+    With `band = (k_pass, k_stop)` the current is that of the state filtered to
+    the populated band: ψ and ∂ψ/∂x at the detector are read through the smooth
+    low-pass kernel of `band_kernel` (1 up to k_pass, 0 from k_stop ≤ π/dx on),
+    so components a large time step feeds far above the band (PHYSICS §3) do not
+    reach the flux; still O(kernel length) per detector, no FFT.
+
     ``nodes`` are the grid indices the stencils read (sorted, unique): a state
     known only there gives the same flux as the full state."""
 
-    def __init__(self, grid, positions, hbar: float, mass: float):
+    def __init__(self, grid, positions, hbar: float, mass: float,
+                 band: Optional[tuple[float, float]] = None):
         self.positions = np.asarray(list(positions), dtype=float)
         self.factor = hbar / mass * (getattr(grid, "cell", grid.dx) / grid.dx)   # 1 on a line
         m = STENCIL_HALF_WIDTH
+        if band is not None:
+            k_pass, k_stop = map(float, band)
+            if not 0 < k_pass < k_stop <= grid.k_max * (1 + 1e-12):
+                raise ValueError(f"band needs 0 < k_pass < k_stop ≤ π/dx = {grid.k_max:g} "
+                                 f"(got {k_pass:g}, {k_stop:g})")
+            reach = KERNEL_REACH * 2 * BAND_EDGE / (k_stop - k_pass)
+            m = max(m, min(int(math.ceil(reach / grid.dx)) + 1, grid.points // 2))
+        self.band = band
         starts, value_w, slope_w = [], [], []
         for z in self.positions:
             centre = int(math.floor((z - grid.left) / grid.dx))
             start = min(max(centre - m + 1, 0), grid.points - 2 * m)
             nodes = grid.left + grid.dx * np.arange(start, start + 2 * m)
-            w = fornberg_weights(z, nodes, 1)
+            if band is None:
+                w = fornberg_weights(z, nodes, 1)
+            else:
+                w = [g * grid.dx for g in band_kernel(z - nodes, *band)]
             starts.append(start)
             value_w.append(w[0])
             slope_w.append(w[1])
@@ -92,6 +132,35 @@ class Detectors:
                            * np.sum(local * ws, axis=-1)).imag
             out[i] = self.factor * (current if one_axis else current.sum())
         return out
+
+
+class BandFilter:
+    """The state filtered to the populated band (the window of `band_kernel`)
+    on one window's cells, by a direct convolution with the kernel sampled on
+    the grid (exact for the band, like the detectors' filter; O(cells·kernel))."""
+
+    def __init__(self, grid, where: Window, band: tuple[float, float]):
+        k_pass, k_stop = map(float, band)
+        reach = KERNEL_REACH * 2 * BAND_EDGE / (k_stop - k_pass)
+        m = min(int(math.ceil(reach / grid.dx)) + 1, grid.points // 4)
+        self.kernel = band_kernel(grid.dx * np.arange(-m, m + 1), k_pass, k_stop)[0] * grid.dx
+        self.m, self.points = m, grid.points
+        self.where = where
+        cells = where.cells
+        self.indices = np.arange(cells.start - m, cells.stop + m) % grid.points  # periodic
+        self.local = Window(slice(0, cells.stop - cells.start), where.first, where.last)
+
+    def probability(self, psi: np.ndarray, dx: float, factor=None) -> float:
+        """∫|ψ_band|² dx over the window (of factor·ψ when a factor is given)."""
+        part = psi[..., self.indices]
+        if factor is not None:
+            part = part * factor[..., self.indices]
+        if part.ndim == 1:
+            filtered = np.convolve(part, self.kernel, mode="valid")
+        else:
+            filtered = np.stack([np.convolve(p, self.kernel, mode="valid")
+                                 for p in part.reshape(-1, part.shape[-1])])
+        return probability(filtered, dx, self.local)
 
 
 def sum_abs2(values: np.ndarray) -> float:

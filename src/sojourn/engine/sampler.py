@@ -49,10 +49,15 @@ class Sampler:
         g = setup.grid
         self.dt, self.every = setup.dt, setup.sample_steps
         self.dx = g.cell   # the cell volume: dx on a line, dx·dy in the plane
-        self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass)
+        self.detectors = obs.Detectors(g, setup.detectors, setup.hbar, setup.mass,
+                                       setup.flux_band)
         self._buffer_detectors = self.detectors if closing is None \
             else self.detectors.with_factor(closing)
         self.region = obs.window(g, *setup.region) if setup.region else None
+        # with the flux, the region's probability is that of the band-filtered state
+        self._region_filter = obs.BandFilter(g, self.region, setup.flux_band) \
+            if self.region is not None and setup.flux_band is not None else None
+        self._closing = closing
         self.left = obs.window(g, g.left - g.dx, setup.reference)
         self.right = obs.window(g, setup.reference, g.right + g.dx)
         self.layers = []   # per side (x below / above the middle): [(index, √(2W/ħ))]
@@ -87,7 +92,11 @@ class Sampler:
         self.t.append(t)
         detectors = self._buffer_detectors if buffer else self.detectors
         self.flux.append(detectors.flux(psi) if len(detectors) else [0.0])
-        self.p_region.append(obs.probability(psi, self.dx, self.region))
+        if self._region_filter is None:
+            self.p_region.append(obs.probability(psi, self.dx, self.region))
+        else:
+            self.p_region.append(self._region_filter.probability(
+                psi, self.dx, self._closing if buffer else None))
         total = obs.norm(psi, self.dx)
         self.norm.append(total)
         for side, blocks in enumerate(self.layers):  # ∫ 2W|ψ|²/ħ dx, sampled

@@ -108,14 +108,19 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
     driven = potential is not None and potential.driven and packet is not None
     for channel, side in (("reflection", "left"), ("transmission", "right")):
         final = float(run.observables[f"P_{side}"][-1] + run.observables[f"absorbed_{side}"][-1])
-        if final > health.CHANNEL_MIN and driven:   # no phase delays to measure
+        expected = None if prediction is None else getattr(prediction, channel)
+        closed = prediction is not None and (expected is None or expected.probability < 1e-8)
+        floor = health.channel_floor(run, closed)
+        if final > floor and driven:   # no phase delays to measure
             channels[channel] = ChannelReport(channel, final, None, None, {})
-        elif final > health.CHANNEL_MIN:
+        elif final > floor:
             channels[channel] = measure_channel(run, stats, channel, warnings, ref)
         else:
             channels[channel] = None
+            reason = "no outgoing packet to time" if floor == health.CHANNEL_MIN else \
+                "what the time step's spurious components may carry where theory transmits nothing"
             notes.append(f"{channel} not measured: its probability {max(final, 0.0):.2g} is "
-                         f"below {health.CHANNEL_MIN:g}, no outgoing packet to time")
+                         f"below {floor:.2g}, {reason}")
     if driven:
         measured = [c for c, r in channels.items() if r is not None]
         blocks, found = sideband_entries(run, stats, potential, packet, measured)

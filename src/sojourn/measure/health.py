@@ -11,6 +11,7 @@ from typing import Optional
 import numpy as np
 
 from ..theory.averages import ABOVE_TOP_WARN, share_above_top as theory_share
+from .. import timestep
 from .frame import K_SPAN, ForwardRun
 from .report import ChannelReport
 
@@ -18,6 +19,20 @@ OUT_OF_BAND_WARN = 1e-6  # probability outside the packet's k-band that calls fo
 LOST_WARN = 1e-6        # probability absorbed or wrapped before the measurement
 START_OVERLAP = 1e-6    # probability beyond the reference point at t = 0
 CHANNEL_MIN = 1e-6      # outgoing probability below which a channel is not measured
+TIME_BIAS_WARN = 1e-3   # the time step's estimated relative bias that calls for a warning
+
+
+def spurious_share(run: ForwardRun) -> float:
+    """The probability the time step's sidebands may carry into a channel
+    theory closes (timestep.sideband_share, over the potential x_r … x_t)."""
+    return timestep.sideband_share(run.info, run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]),
+                                   run.hbar, run.mass, run.dt)
+
+
+def channel_floor(run: ForwardRun, closed: bool) -> float:
+    """The probability above which a channel is measured: CHANNEL_MIN, or for a
+    channel theory closes, at least what the time step's sidebands may carry."""
+    return max(CHANNEL_MIN, spurious_share(run)) if closed else CHANNEL_MIN
 
 
 def starts_at_potential(run: ForwardRun) -> float:
@@ -50,7 +65,7 @@ def leakage(run: ForwardRun, stats: dict, prediction) -> Optional[str]:
         return None
     beyond = float(stats["P_tr"][-1] + run.observables["absorbed_right"][-1])
     still = float(stats["norm"][-1] - stats["P_out"][-1] - stats["P_tr"][-1])
-    if beyond <= CHANNEL_MIN or still > beyond:
+    if beyond <= channel_floor(run, True) or still > beyond:
         return None
     return (f"{beyond:.2g} of the probability went through, where theory transmits nothing: "
             "spurious leakage, most likely from too large a time step at a sharp feature")
@@ -108,6 +123,10 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
                         "for the grid or a packet cut by the box edge")
     phase = run.grid_phase
     if phase > math.pi:
-        warnings.append(f"the time step is past the grid limit: Δt·(E_max + ΔV)/ħ = {phase:.3g} "
-                        "> π; sharp features feed spurious high-k components that bias delays")
+        h = timestep.sharpness(run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]), 0.0)
+        bias = timestep.time_error(h, run.dt, hbar)
+        if bias > TIME_BIAS_WARN:
+            warnings.append(f"the time step is large for the potential's sharp features: "
+                            f"Δt·(E_max + ΔV)/ħ = {phase:.3g} > π, and the spurious high-k "
+                            f"components they feed bias delays by about {bias:.1e} (relative)")
     return warnings
