@@ -215,7 +215,7 @@ class Propagator:
             return (np.exp(-1j * hbar * grid.k_squared * (c * dt) / (2 * mass)) / points).astype(dtype)
 
         self._first = kick(weights[0] / 2)          # opens a stretch of steps
-        self._last = kick(weights[-1] / 2)          # closes it
+        self._last = self._first                    # closes it: the same factor (rule 3), one array
         self._between = kick((weights[-1] + weights[0]) / 2)  # fuses two steps
         self._inner = [kick((a + b) / 2) for a, b in zip(weights[:-1], weights[1:])]
         distinct = {c: drift(c) for c in set(weights)}
