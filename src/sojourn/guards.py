@@ -236,8 +236,14 @@ def guard(s, limit: float, absorber_width: float) -> None:
                         "N); grid.points: auto puts the first jump on a grid point"))
             break
 
-    # memory, disk and run time
+    resource_findings(s, add)
+
+
+def resource_findings(s, add) -> None:
+    """Memory, disk and run time of a Setup on a line or in the plane: an error
+    past the run-time cap (forceable) or the free disk, and the estimates."""
     points = int(np.prod(s.state_shape))    # a spinor carries one state per component
+    shape = "×".join(map(str, s.grid.shape[::-1]))   # N on a line, Nx×Ny in the plane
     memory = memory_estimate(points, s.scenario.evolve.precision)
     disk = file_estimate(s)
     seconds = run_time_estimate(points, s.steps, s.scenario.evolve.scheme,
@@ -245,18 +251,18 @@ def guard(s, limit: float, absorber_width: float) -> None:
     if seconds > MAX_RUN_SECONDS:
         add(Finding("error", "evolve.duration",
                     f"the run would take about {_duration(seconds)} here ({s.steps:.3g} steps of "
-                    f"{grid.points} points), more than {_duration(MAX_RUN_SECONDS)}; use a larger "
+                    f"{shape} points), more than {_duration(MAX_RUN_SECONDS)}; use a larger "
                     "dt, fewer points or a shorter duration", forceable=True))
     out_dir = _output_dir(s.scenario)
     free = _free_disk(out_dir)
     if free is not None and disk > free:
         add(Finding("error", "record.every",
                     f"the run file needs about {_size(disk)} ({s.snapshots} snapshots of "
-                    f"{grid.points} points); {out_dir} has {_size(free)} free"))
+                    f"{shape} points); {out_dir} has {_size(free)} free"))
     at_most = "at most " if s.scenario.record.compress else ""
-    s.findings.append(Finding("info", "", f"estimated memory {_size(memory)}, run file "
-                                          f"{at_most}{_size(disk)} ({s.snapshots} snapshots), "
-                                          f"run time {_duration(seconds)} here"))
+    add(Finding("info", "", f"estimated memory {_size(memory)}, run file {at_most}{_size(disk)} "
+                            f"({s.snapshots} snapshots of {shape} points), run time "
+                            f"{_duration(seconds)} here"))
 
 
 def _time_step(s, limit: float, add) -> None:

@@ -15,8 +15,7 @@ import math
 
 import numpy as np
 
-from .guards import (RESOLUTION_MARGIN, Finding, _duration, _free_disk, _output_dir, _size,
-                     file_estimate, memory_estimate, run_time_estimate)
+from .guards import RESOLUTION_MARGIN, Finding, resource_findings
 from .model.absorber import absorber_profile
 from .model.shapes import SUBSAMPLES
 
@@ -113,22 +112,4 @@ def guard_plane(s, limit: float, absorber_width: float) -> None:
             add(Finding("warning", "packet.center",
                         f"the packet (centre {name} = {info.center:g}, width {info.width:g}) is "
                         f"within 5 widths of the box edge or the absorber"))
-    memory = memory_estimate(grid.size, s.scenario.evolve.precision)
-    disk = file_estimate(s)
-    seconds = run_time_estimate(grid.size, s.steps, s.scenario.evolve.scheme,
-                                s.scenario.evolve.precision)
-    shape = f"{grid.points}×{grid.ny}"
-    if seconds > 30 * 86400:
-        add(Finding("error", "evolve.duration",
-                    f"the run would take about {_duration(seconds)} here ({s.steps:.3g} steps of "
-                    f"{shape} points); use a larger dt, fewer points or a shorter duration",
-                    forceable=True))
-    out_dir = _output_dir(s.scenario)
-    free = _free_disk(out_dir)
-    if free is not None and disk > free:
-        add(Finding("error", "record.every",
-                    f"the run file needs about {_size(disk)} ({s.snapshots} snapshots of "
-                    f"{shape} points); {out_dir} has {_size(free)} free"))
-    add(Finding("info", "", f"estimated memory {_size(memory)}, run file {_size(disk)} "
-                            f"({s.snapshots} snapshots of {shape}), run time "
-                            f"{_duration(seconds)} here"))
+    resource_findings(s, add)
