@@ -115,3 +115,19 @@ def test_explicit_measure_settings_are_kept():
         "measure: {reference: 1.0, detectors: [-20.0], region: [-1.0, 3.0]}\n"
     s = build(loads(text, "m.yaml"))
     assert (s.reference, s.detectors, s.region) == (1.0, [-20.0], (-1.0, 3.0))
+
+
+def test_a_prime_record_interval_does_not_make_every_step_a_sample():
+    # the automatic sampling aims at 50 samples per passage time; a record interval of a
+    # prime number of steps has no divisor near it, so the recordings move to a whole
+    # number of samples apart instead (still about record.every)
+    def with_dt(record=""):
+        return build(loads(BASE.format(potential="step: {at: 0.0, height: 1.0}", energy=0.5,
+                                       duration=40.0, record=record).replace(
+            "evolve: {duration: 40.0}", "evolve: {duration: 40.0, dt: 0.004}"), "d.yaml"))
+    aim = with_dt().sample_steps
+    assert aim >= 40
+    prime = next(n for n in range(5 * aim + 1, 10 * aim) if all(n % d for d in range(2, n)))
+    s = with_dt(f"record: {{every: {prime * 0.004!r}}}")
+    assert s.sample_steps >= aim / 4 and s.record_steps % s.sample_steps == 0
+    assert abs(s.record_steps - prime) <= s.sample_steps / 2 + 1

@@ -427,6 +427,10 @@ def _build(scenario: Scenario) -> Setup:
         # 50 samples per temporal width of a passage: the trapezoid rule is then
         # exact to far below the delays' precision for these smooth signals
         sample_steps = max(1, min(record_steps, int(passage / 50 / dt)))
+        if record_steps < steps and 4 * _largest_divisor(record_steps, sample_steps) < sample_steps:
+            # a record interval of (nearly) a prime number of steps would sample (nearly) every
+            # step: move the recordings to a whole number of samples apart (≈ record.every)
+            record_steps = min(steps, sample_steps * max(1, round(record_steps / sample_steps)))
     sample_steps = _largest_divisor(record_steps, sample_steps)  # a regular comb through recordings
 
     # absorber
