@@ -39,13 +39,14 @@ from ..errors import MeasureError
 from ..model import packets
 from ..theory.angular_averages import packet_beam_prediction
 from ..theory.obstacles import incident_packet, obstacle_of
+from .report import DelayReport
 
 DEFAULT_BINS = 36
 K_SPAN = 8.0            # energies k₀ ± 8σ_k (as the predictions)
 K_NODES = 241           # Simpson nodes in k
 PER_BIN = 8             # Gauss–Legendre angles per bin
 M_EXTRA = 16            # harmonics kept beyond k_max·R
-TAIL_WARN = 1e-3        # |ψ_sc| on the circle at the run's end, relative to its peak
+TAIL_WARN = 1e-4        # |ψ_sc|² on the circle at the run's end, relative to its peak
 SECOND = 0.7            # the second circle's radius, as a share of the way obstacle → R
 
 
@@ -200,10 +201,10 @@ def measure_angular(rf) -> dict:
         points = 1 << max(8, int(math.ceil(math.log2(4 * m_keep + 2))))
         c_t, peak, last = circle_harmonics(rf, obstacle.center, radius, points, normal,
                                            transverse, hbar, mass)
-        if radius == R and last > TAIL_WARN * peak:
-            warnings.append(f"evolve.duration: the scattered wave on the detector circle is "
-                            f"still {last / peak:.1e} of its peak when the run ends: its "
-                            "delays miss the tail")
+        if radius == R and last ** 2 > TAIL_WARN * peak ** 2:
+            warnings.append(f"evolve.duration: the scattered density on the detector circle "
+                            f"is still {(last / peak) ** 2:.1e} of its peak when the run ends: "
+                            "its delays miss the tail")
         m, A, A_E = far_field(c_t, times, radius, k, hbar, mass, m_keep)
         results.append(bin_values(m, A, A_E, k, edges, inc.x0, hbar, mass))
     (P, tau), (P2, tau2) = results
@@ -217,7 +218,7 @@ def measure_angular(rf) -> dict:
             "cross_section": section.tolist(),
             "predicted_cross_section": predicted_section.tolist(),
             "cross_section_error": np.abs(section - section2).tolist(),
-            "ring": R, "bins": int(bins), "fluence": fluence,
+            "ring": R, "bins": int(bins), "fluence": fluence, "direction": inc.direction,
             "probability_scattered": float(P.sum())}, warnings
 
 
@@ -235,3 +236,25 @@ def bin_prediction(obstacle, inc, edges, hbar: float, mass: float):
     per_bin = lambda v: (w * v).reshape(half.size, -1).sum(axis=1)
     flux = per_bin(beam.cross_section)
     return per_bin(beam.cross_section * beam.delay) / flux, flux / (2 * half)
+
+
+def is_obstacle_run(rf) -> bool:
+    """True for a run in the plane whose potential is one disk or ring."""
+    return "y" in rf.axes and obstacle_of(rf.scenario().build_potential())[0] is not None
+
+
+def obstacle_report(rf) -> DelayReport:
+    """The delay report of a run off one disk or ring: no channels along a
+    normal, the `scattering.angular` block, the run's health warnings."""
+    if rf.status != "complete":
+        status = [f"the run's status is '{rf.status}': it may have ended early"]
+    else:
+        status = []
+    block, warnings = measure_angular(rf)
+    notes = ["off a circular obstacle the wave leaves in every direction: the delays are "
+             "measured per angle bin of the detector circle (scattering.angular), not along "
+             "a normal"]
+    spec = rf.scenario().packet
+    return DelayReport(str(rf.path), rf.units, None, None, {}, status + warnings,
+                       float(spec.energy) if spec.energy is not None else None, notes,
+                       scattering={"angular": block})

@@ -151,3 +151,18 @@ def format_obstacle_table(table: dict, shown_m: int = 8) -> str:
         lines.append(f"  {math.degrees(th):7.1f}  {fmt(p['cross_section'][j]):<16s} "
                      f"{fmt(p['delay'][j])}")
     return "\n".join(lines) + "\n"
+
+
+def beam_curve(scenario, angles: int = 181):
+    """(θ from the packet's direction on [0, π], τ, dσ/dθ) of the scenario's
+    beam (`packet_beam_prediction`): the theory curve under measured points."""
+    obstacle, why = obstacle_of(scenario.build_potential())
+    if obstacle is None:
+        raise TheoryError(why)
+    packet = incident_packet(scenario, obstacle)
+    theta = np.linspace(0.0, math.pi, angles)
+    beam = packet_beam_prediction(list(obstacle.shells), theta, k0=packet.k0,
+                                  sigma_k=packet.sigma_k, sigma_ky=packet.sigma_ky,
+                                  x0=packet.x0, y0=packet.y0, hbar=scenario.hbar,
+                                  mass=scenario.particle_mass)
+    return theta, beam.delay, beam.cross_section
