@@ -82,7 +82,8 @@ def test_theory_of_a_disk_prints_its_closed_form_phase_shifts(tmp_path):
 def test_theory_of_other_planar_potentials_is_refused_in_one_line(tmp_path):
     path = tmp_path / "rect.yaml"
     path.write_text(CHEAP.replace("disk: {center: [0.0, 0.0], radius: 3.0, height: 1.0}",
-                                  "rectangle: {x: [-2.0, 2.0], y: [-2.0, 2.0], height: 1.0}"))
+                                  "rectangle: {x: [-2.0, 2.0], y: [-2.0, 2.0], height: 1.0}")
+                    .replace("measure: {bins: 12}\n", ""))
     out = sojourn("theory", str(path))
     assert out.returncode == 2
     assert "no partial-wave theory for this potential" in out.stderr
@@ -221,3 +222,20 @@ def test_time_integral_is_exact_while_the_snapshots_keep_the_band(cheap_run):
     np.testing.assert_allclose(every2["measured"], fine["measured"], rtol=2e-3)
     np.testing.assert_allclose(every2["cross_section"], fine["cross_section"], rtol=2e-3)
     assert any("record.every" in w for w in found4)
+
+
+@pytest.mark.parametrize("old, new", [
+    ("disk: {center: [0.0, 0.0], radius: 3.0, height: 1.0}",
+     "rectangle: {x: [-2.0, 2.0], y: [-2.0, 2.0], height: 1.0}"),
+    ("  - disk: {center: [0.0, 0.0], radius: 3.0, height: 1.0}\n",
+     "  - disk: {center: [0.0, 0.0], radius: 3.0, height: 1.0}\n"
+     "  - disk: {center: [9.0, 0.0], radius: 1.0, height: 1.0}\n"),
+])
+def test_a_detector_circle_without_one_obstacle_names_file_line_and_key(old, new):
+    from sojourn.errors import ScenarioError
+    text = CHEAP.replace(old, new)
+    assert text != CHEAP
+    with pytest.raises(ScenarioError) as err:
+        loads(text, source="d.yaml")
+    line = next(i for i, s in enumerate(text.splitlines(), 1) if s.startswith("measure:"))
+    assert str(err.value).startswith(f"d.yaml:{line}: measure.bins:")
