@@ -19,8 +19,9 @@ SCATTERING = ["configs/step.yaml", "configs/barrier.yaml", "configs/smooth_step.
               "configs/oblique_step.yaml"]
 # driven_barrier measures sidebands, not delays: tests/physics/test_sidebands_measure.py;
 # the double slit scatters off a shape of the plane: no delays along a normal (it is a movie)
+# disk_scattering measures per direction off its obstacle: tests/test_angular.py
 SHIPPED = SCATTERING + ["configs/harmonic.yaml", "configs/driven_barrier.yaml",
-                        "configs/double_slit.yaml"]
+                        "configs/double_slit.yaml", "configs/disk_scattering.yaml"]
 QUICK = ["src/sojourn/data/demo.yaml", "configs/step.yaml", "configs/step_small.yaml",
          "configs/barrier.yaml", "configs/larmor_clock.yaml"]     # a few seconds each here
 

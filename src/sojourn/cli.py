@@ -222,6 +222,8 @@ def cmd_theory(args) -> int:
     if args.synthesize:
         return _synthesize(scenario, args)
     energies = theory.parse_energies(args.energies) if args.energies else None
+    if scenario.dimensions == 2 and not scenario.build_potential().along_x:
+        return _obstacle_theory(scenario, energies, args)
     table = theory.theory_table(scenario, energies)
     if args.plot:
         theory.plot_theory(table, args.plot)
@@ -231,6 +233,33 @@ def cmd_theory(args) -> int:
         sys.stdout.write(theory.table_csv(table))
     else:
         sys.stdout.write(theory.format_table(table))
+        if args.plot:
+            _say(f"wrote {args.plot}")
+    return EXIT_OK
+
+
+def _obstacle_theory(scenario, energies, args) -> int:
+    """`sojourn theory` of a scenario in the plane with one disk or ring."""
+    import numpy as np
+    from .theory import obstacles
+    from .render import polar
+    table = obstacles.obstacle_table(scenario, energies)
+    if args.plot:
+        curves = polar.curves_from_table(table, table["units"]["energy"])
+        p = table["packet"]
+        curves.append(polar.PolarCurve("packet average", np.asarray(p["theta"], float),
+                                       np.asarray(p["delay"], float),
+                                       np.asarray(p["cross_section"], float)))
+        fig = polar.polar_figure(curves, time_unit=table["units"]["time"],
+                                 length_unit=table["units"]["length"], title=scenario.title)
+        polar.save_polar(fig, args.plot)
+    if args.json:
+        _say(json.dumps(table, indent=2))
+    elif args.csv:
+        raise UsageError("--csv: a partial-wave table has no single per-energy column "
+                            "set; use --json")
+    else:
+        sys.stdout.write(obstacles.format_obstacle_table(table))
         if args.plot:
             _say(f"wrote {args.plot}")
     return EXIT_OK

@@ -5,6 +5,7 @@ stays fast; the command (cli.py) gathers the data and prints these lines."""
 from __future__ import annotations
 
 import json
+import math
 
 
 def num(value, digits=7) -> str:
@@ -116,6 +117,8 @@ def format_delay_report(report, moves=None) -> list:
                          f", packet-averaged {num(shift['predicted'])} (relative "
                          f"{'—' if rel is None else f'{rel:.2e}'}); stationary phase at k₀ "
                          f"{num(shift.get('stationary'))}")
+    if getattr(report, "scattering", None):
+        lines += [""] + format_angular(report.scattering["angular"], report.units)
     if getattr(report, "plane", None):
         p = report.plane
         lines.insert(1, f"in the plane: incidence at {p['angle']:.4g}° from the normal x; the "
@@ -140,6 +143,23 @@ def format_delay_report(report, moves=None) -> list:
         lines += [""] + [f"note: {n}" for n in report.notes]
     if report.warnings:
         lines += [""] + [f"warning: {w}" for w in report.warnings]
+    return lines
+
+
+def format_angular(block: dict, units: dict) -> list:
+    """The angle-resolved table: per bin θ, τ measured and predicted, dσ/dθ
+    measured and predicted, the bin's probability."""
+    t, length = units.get("time", ""), units.get("length", "")
+    lines = [f"scattering off the obstacle: detector circle r = {block['ring']:g} {length}, "
+             f"{block['bins']} bins; scattered probability {block['probability_scattered']:.6g}",
+             f"  {'θ (deg)':>8}{'τ measured':>13}{'predicted':>12}{'±':>9}"
+             f"{'dσ/dθ':>11}{'predicted':>11}{'P(bin)':>11}   (τ in {t}, dσ/dθ in {length})"]
+    for i, th in enumerate(block["theta"]):
+        lines.append(f"  {math.degrees(th):>8.1f}{num(block['measured'][i], 5):>13}"
+                     f"{num(block['predicted'][i], 5):>12}{num(block['error'][i], 2):>9}"
+                     f"{num(block['cross_section'][i], 5):>11}"
+                     f"{num(block['predicted_cross_section'][i], 5):>11}"
+                     f"{num(block['probability'][i], 4):>11}")
     return lines
 
 

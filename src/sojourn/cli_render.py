@@ -11,11 +11,15 @@ from .errors import UsageError
 def cmd_render(args) -> int:
     from . import render
     from .render.options import parse_fps
-    if not args.output and not args.figure:
+    if not args.output and not args.figure and not args.polar:
         raise UsageError("sojourn render: give -o MOVIE.mp4|.gif and/or --figure FIG.png|.pdf|.svg")
     _flag_forced(args.file)
+    if args.polar and not render.is_plane_run(args.file):
+        raise UsageError("sojourn render: --polar is for a run in the plane off one disk or ring")
     if render.is_plane_run(args.file):
-        return _render_plane(args)
+        if args.polar:
+            _render_polar(args)
+        return _render_plane(args) if (args.output or args.figure) else 0
     common = {}
     if args.xlim:
         common["xlim"] = render.parse_xlim(args.xlim)
@@ -71,6 +75,35 @@ def _render_plane(args) -> int:
     return 0
 
 
+def _render_polar(args) -> None:
+    """The polar figure of a run off one disk or ring: τ(θ) and dσ/dθ measured
+    per detector bin on the beam's packet-averaged partial-wave curves."""
+    import numpy as np
+    from .measure import delays
+    from .render import polar
+    from .store import RunFile
+    from .theory import obstacles
+    report = delays.measure_delays(args.file)
+    if report.scattering is None:
+        raise UsageError(f"sojourn render --polar: {args.file} is not a run off one disk or ring")
+    block = report.scattering["angular"]
+    with RunFile(args.file) as rf:
+        scenario = rf.scenario()
+    theta, delay, section = obstacles.beam_curve(scenario)
+    wrapped = np.angle(np.exp(1j * (np.asarray(block["theta"]) - block["direction"])))
+    measured = polar.PolarPoints(wrapped, np.asarray(block["measured"], float),
+                                 np.asarray(block["error"], float),
+                                 np.asarray(block["cross_section"], float),
+                                 np.asarray(block["cross_section_error"], float))
+    fig = polar.polar_figure([polar.PolarCurve("partial waves, packet average", theta, delay,
+                                               section)], measured=measured,
+                             time_unit=report.units.get("time", ""),
+                             length_unit=report.units.get("length", ""), style=args.style or
+                             "paper", title=scenario.title, **({"dpi": args.dpi} if args.dpi
+                                                                else {}))
+    _say(f"wrote {polar.save_polar(fig, args.polar, **({'dpi': args.dpi} if args.dpi else {}))}")
+
+
 def add_render(sub) -> None:
     p = sub.add_parser("render", help="movies (.mp4, .gif) and figures (.png, .pdf, .svg)")
     p.add_argument("file", help="a run file")
@@ -98,6 +131,9 @@ def add_render(sub) -> None:
                                                       "run in the plane: movie and figure)")
     p.add_argument("--times", type=float, nargs="+", metavar="T",
                    help="a run in the plane: the snapshots the figure shows (nearest times)")
+    p.add_argument("--polar", metavar="FIG",
+                   help="a run in the plane off one disk or ring: τ(θ) and dσ/dθ measured "
+                        "per angle bin on partial-wave theory (.png, .pdf, .svg)")
     p.add_argument("--dpi", type=float, help="figure resolution for PNG (default 300)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_render)

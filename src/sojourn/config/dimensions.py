@@ -43,4 +43,10 @@ def dimension_problem(scenario) -> Optional[tuple[tuple, str]]:
                                         "line only; in the plane give points and dt")
     if plane and scenario.larmor is not None:
         return ("larmor",), "a Larmor clock runs on a line only (one grid axis)"
+    obstacle = plane and len(scenario.terms) == 1 and \
+        getattr(scenario.terms[0], "kind", None) in ("disk", "ring")
+    for key in ("ring", "bins"):
+        if getattr(scenario.measure, key, None) is not None and not obstacle:
+            return ("measure", key), ("a detector circle needs a grid in the plane and one "
+                                      "disk or ring as the whole potential")
     return None

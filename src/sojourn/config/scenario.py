@@ -178,6 +178,10 @@ class MeasureSpec(_Strict):
     reference: Optional[float] = None
     detectors: Optional[list[float]] = None
     region: Optional[tuple[float, float]] = None
+    # in the plane, off one disk or ring: the detector circle's radius round the
+    # obstacle's centre and its number of angle bins (measure.angular)
+    ring: Optional[float] = Field(default=None, gt=0)
+    bins: Optional[int] = Field(default=None, ge=4, le=720)
 
     @field_validator("region")
     @classmethod

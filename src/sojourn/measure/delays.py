@@ -14,7 +14,7 @@ from ..errors import MeasureError
 from ..guards import band_floor, dwell_grid_error
 from ..model.packets import PacketInfo
 from ..store import RunFile
-from . import health, larmor
+from . import angular, health, larmor
 from .frame import ForwardRun, predictions, snapshot_stats
 from .methods import METHODS, channel_context
 from .plane import measure_plane
@@ -45,6 +45,8 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
             if reference_run is not None:
                 raise MeasureError("a reference run is not used for a run in the plane (its "
                                    "reference is the exact free evolution)")
+            if angular.is_obstacle_run(rf):   # off one disk or ring: per direction
+                return angular.obstacle_report(rf)
             return measure_plane(rf, measure_run)
         potential = rf.scenario().build_potential()
         run = ForwardRun.from_runfile(rf, potential)

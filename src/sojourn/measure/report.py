@@ -153,6 +153,7 @@ class DelayReport:
     energy0: Optional[float] = None
     notes: list = field(default_factory=list)     # facts that cast no doubt (a channel not measured)
     plane: Optional[dict] = None   # a run in the plane: angle (degrees), k_x, k_y, energy_normal
+    scattering: Optional[dict] = None   # off one disk or ring: {"angular": measure.angular block}
 
     def channels(self) -> list:
         return [c for c in (self.reflection, self.transmission) if c is not None]
@@ -166,4 +167,5 @@ class DelayReport:
             "notes": list(self.notes),
             **({} if self.plane is None else
                {"plane": {key: finite_or_none(v) for key, v in self.plane.items()}}),
+            **({} if self.scattering is None else {"scattering": _strict(self.scattering)}),
         }
