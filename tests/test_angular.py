@@ -239,3 +239,11 @@ def test_a_detector_circle_without_one_obstacle_names_file_line_and_key(old, new
         loads(text, source="d.yaml")
     line = next(i for i, s in enumerate(text.splitlines(), 1) if s.startswith("measure:"))
     assert str(err.value).startswith(f"d.yaml:{line}: measure.bins:")
+
+
+def test_verify_says_in_one_line_that_angular_delays_have_no_richardson_bars(cheap_run):
+    out = sojourn("delay", str(cheap_run), "--verify")
+    assert out.returncode == 2
+    last = out.stderr.strip().splitlines()[-1]
+    assert "error" in last and "no Richardson error bars for angle-resolved delays" in last
+    assert "Traceback" not in out.stderr

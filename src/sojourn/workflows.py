@@ -21,6 +21,7 @@ from .engine.propagate import ORDER
 from .engine.sampler import Sampler
 from .errors import MeasureError, RunFileError
 from .measure import DelayReport, measure_delays
+from .measure.angular import is_obstacle_run
 from .model.spin import clock_region, component_potentials
 from .store import MemoryRun, RunFile, RunReader, RunWriter, output_path, partial_path
 from .store.writer import COMMIT_SECONDS
@@ -229,6 +230,11 @@ def verify(runfile_or_path, progress: Optional[Callable[[str], None]] = None,
     """
     say = progress or (lambda message: None)
     path = Path(runfile_or_path.path if isinstance(runfile_or_path, RunReader) else runfile_or_path)
+    with RunFile(path) as rf:
+        if is_obstacle_run(rf):
+            raise MeasureError(f"{path}: --verify has no Richardson error bars for angle-resolved "
+                               "delays yet (their 'error' is the spread between two detector "
+                               "circles); rerun with finer points on both axes to judge the grid")
     base = measure_delays(runfile_or_path)
     with RunFile(path) as rf:
         scenario = rf.scenario()
