@@ -9,7 +9,8 @@ from pathlib import Path
 
 import pytest
 
-from sojourn.build import PASSAGE_GAP, build, reflection_gap
+from sojourn.build import build
+from sojourn.passages import PASSAGE_GAP, reflection_gap
 from sojourn.config.scenario import load, loads, with_changes
 from sojourn.measure.delays import measure_delays
 from sojourn.model import packets

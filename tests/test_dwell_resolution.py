@@ -11,7 +11,7 @@ import pytest
 from scenarios import small_step
 from sojourn.build import build
 from sojourn.config.scenario import loads
-from sojourn.guards import DWELL_GRID_ERROR, dwell_grid_error
+from sojourn.grid_error import DWELL_GRID_ERROR, dwell_grid_error
 from sojourn.measure.delays import measure_delays
 from sojourn.workflows import run_in_memory
 

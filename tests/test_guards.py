@@ -11,7 +11,7 @@ import pytest
 from sojourn.build import build
 from sojourn.config.scenario import loads
 from sojourn.errors import ScenarioError
-from sojourn.guards import rendering_error
+from sojourn.grid_error import rendering_error
 from sojourn.theory import closed_forms as cf
 from sojourn.workflows import run as execute
 

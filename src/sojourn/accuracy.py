@@ -25,7 +25,9 @@ import numpy as np
 from . import timestep
 from .engine.propagate import SCHEMES
 from .errors import ScenarioError
-from .guards import RESOLUTION_MARGIN, Finding, grid_rendering_error
+from .findings import Finding
+from .grid_error import grid_rendering_error
+from .guards import RESOLUTION_MARGIN
 from .model import packets
 from .model.grid import Grid
 

@@ -11,7 +11,7 @@ from typing import Optional
 import numpy as np
 
 from ..errors import MeasureError
-from ..guards import band_floor, dwell_grid_error
+from ..grid_error import band_floor, dwell_grid_error
 from ..model.packets import PacketInfo
 from ..store import RunFile
 from . import angular, health, larmor
