@@ -79,6 +79,24 @@ def open_encoder(path: Path, size: tuple[int, int], fps: float, quality: int = 1
     return writer
 
 
+def encode(output: Path, options, frames, total: int,
+           progress: Optional[Callable[[int, int], None]] = None) -> Path:
+    """Send every RGBA buffer of `frames` into a movie at `output` (options: size,
+    fps, quality, preset); a failure part-way removes the unfinished file."""
+    writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
+    try:
+        for done, image in enumerate(frames, 1):
+            writer.send(image)
+            if progress:
+                progress(done, total)
+    except BaseException:
+        writer.close()
+        output.unlink(missing_ok=True)
+        raise
+    writer.close()
+    return output
+
+
 
 class MovieFrame:
     """One figure whose artists are updated for every frame. The static parts
@@ -364,17 +382,5 @@ def render_movie(path, output, options: MovieOptions = MovieOptions(),
             states, total = run.snapshots(), len(run)
         scanned = SpinSummed(run) if facts.components is not None else run
         frame = MovieFrame(facts, options, scan_run(scanned, facts))
-        writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
-        done = 0
-        try:
-            for t, psi in states:
-                writer.send(frame.draw(t, psi))
-                done += 1
-                if progress:
-                    progress(done, total)
-        except BaseException:
-            writer.close()
-            output.unlink(missing_ok=True)
-            raise
-        writer.close()
-    return output
+        return encode(output, options, (frame.draw(t, psi) for t, psi in states), total,
+                      progress)

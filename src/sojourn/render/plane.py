@@ -28,7 +28,7 @@ from matplotlib.figure import Figure
 from ..errors import RenderError
 from ..model import packets
 from ..store import RunFile
-from .movie import open_encoder
+from .movie import encode
 from .options import MOVIE_FORMATS, check_output
 from .styles import apply_look, look as get_look
 
@@ -274,18 +274,9 @@ def render_plane_movie(path, output, options: PlaneOptions = PlaneOptions(),
         if len(run) == 0:
             raise RenderError(f"{path}: the run file holds no snapshots yet")
         frame = PlaneFrame(run, options)
-        writer = open_encoder(output, options.size, options.fps, options.quality, options.preset)
-        try:
-            for i, (t, psi) in enumerate(run.snapshots()):
-                writer.send(frame.draw(i, t, psi))
-                if progress:
-                    progress(i + 1, len(run))
-        except BaseException:
-            writer.close()
-            output.unlink(missing_ok=True)
-            raise
-        writer.close()
-    return output
+        return encode(output, options, (frame.draw(i, t, psi)
+                                        for i, (t, psi) in enumerate(run.snapshots())),
+                      len(run), progress)
 
 
 def render_plane_figure(path, output, times=None, options: Optional[PlaneOptions] = None,
