@@ -35,15 +35,20 @@ def cmd_render(args) -> int:
                                     density_power=args.density_power, **common, **(
             {"size": render.parse_size(args.size, "px")} if args.size else {}), **(
             {"curves": render.parse_curves(args.curves)} if args.curves else {}))
-        update, close = _frame_bar(args.quiet)
-        try:
-            path = render.render_movie(args.file, args.output, movie, update)
-        finally:
-            close()
-        _say(f"wrote {path}")
+        _write_movie(render.render_movie, args, movie)
     if args.figure:
         _say(f"wrote {render.render_figure(args.file, args.figure, fig_opts)}")
     return 0
+
+
+def _write_movie(renderer, args, options) -> None:
+    """Render a movie with a frame progress bar and say where it went."""
+    update, close = _frame_bar(args.quiet)
+    try:
+        path = renderer(args.file, args.output, options, update)
+    finally:
+        close()
+    _say(f"wrote {path}")
 
 
 def _render_plane(args) -> int:
@@ -63,12 +68,7 @@ def _render_plane(args) -> int:
     if args.output:
         movie = render.PlaneOptions(fps=parse_fps(args.fps), **options, **(
             {"size": render.parse_size(args.size, "px")} if args.size else {}))
-        update, close = _frame_bar(args.quiet)
-        try:
-            path = render.render_plane_movie(args.file, args.output, movie, update)
-        finally:
-            close()
-        _say(f"wrote {path}")
+        _write_movie(render.render_plane_movie, args, movie)
     if args.figure:
         figure = render.PlaneOptions(**{"style": "paper", **options}, size=(2400, 900))
         _say(f"wrote {render.render_plane_figure(args.file, args.figure, args.times, figure)}")

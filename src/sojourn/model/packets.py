@@ -29,16 +29,21 @@ class PacketInfo:
         return abs(self.k0) / self.sigma_k
 
 
+def wavenumber_of(spec, hbar: float, mass: float, level: float) -> float:
+    """|k| of a packet spec: its wavenumber, or from its energy above `level`
+    (V at the centre; ValueError when the energy is not above it)."""
+    if spec.wavenumber is not None:
+        return abs(spec.wavenumber)
+    kinetic = spec.energy - level
+    if kinetic <= 0:
+        raise ValueError(f"packet energy {spec.energy} is not above the potential "
+                         f"{level} at the packet's centre")
+    return math.sqrt(2 * mass * kinetic) / hbar
+
+
 def describe(spec, hbar: float, mass: float, level: float = 0.0) -> PacketInfo:
     """PacketInfo from a scenario's packet spec; `level` is V where the packet starts."""
-    if spec.wavenumber is not None:
-        k0 = abs(spec.wavenumber)
-    else:
-        kinetic = spec.energy - level
-        if kinetic <= 0:
-            raise ValueError(f"packet energy {spec.energy} is not above the potential "
-                             f"{level} at the packet's centre")
-        k0 = math.sqrt(2 * mass * kinetic) / hbar
+    k0 = wavenumber_of(spec, hbar, mass, level)
     if spec.direction == "left":
         k0 = -k0
     sigma_k = 1 / (2 * spec.width)
@@ -77,14 +82,7 @@ def in_plane(spec, hbar: float, mass: float, level: float = 0.0) -> tuple[Packet
     along the direction θ (degrees from +x; 'right'/'left' are 0°/180°) into
     k_x = |k| cos θ and k_y = |k| sin θ. The normal one carries the energy of
     the motion along x, E_x = ħ²k_x²/2m + level, what a potential of x alone sees."""
-    if spec.wavenumber is not None:
-        k = abs(spec.wavenumber)
-    else:
-        kinetic = spec.energy - level
-        if kinetic <= 0:
-            raise ValueError(f"packet energy {spec.energy} is not above the potential "
-                             f"{level} at the packet's centre")
-        k = math.sqrt(2 * mass * kinetic) / hbar
+    k = wavenumber_of(spec, hbar, mass, level)
     angle = {"right": 0.0, "left": 180.0}.get(spec.direction, spec.direction)
     theta = math.radians(float(angle))
     widths = spec.width if isinstance(spec.width, tuple) else (spec.width, spec.width)
