@@ -17,7 +17,7 @@ from sojourn.store import RunFile, lock_path, partial_path
 from sojourn.errors import RunFileError
 from sojourn.config.scenario import load
 
-# about 80 000 steps on 4096 points with a snapshot every 200 steps: several
+# about 160 000 steps on 4096 points with a snapshot every 400 steps: several
 # seconds of run on a quiet machine, so that a signal lands in the middle
 LONG = """\
 title: long enough to be killed
@@ -26,7 +26,7 @@ grid: {span: [-400.0, 400.0], points: 4096}
 potential:
   - barrier: {start: 0.0, end: 2.0, height: 0.6}
 packet: {center: -150.0, width: 15.0, energy: 0.5}
-evolve: {duration: 400.0, dt: 0.005}
+evolve: {duration: 400.0, dt: 0.0025}
 absorber: {width: 60.0}
 record: {every: 1.0}
 measure: {detectors: [-75.0, 75.0]}
