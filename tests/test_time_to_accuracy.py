@@ -84,8 +84,10 @@ def test_a_jump_couples_with_its_height_at_every_wavenumber():
 def test_default_time_step_follows_the_jump_on_fine_grids_and_the_grid_on_coarse_ones():
     fine, coarse = build(step(16384)), build(step(1024))
     grid_rule = math.pi / 2 / (fine.grid.kinetic_max(1.0, 1.0) + 1.0)
-    # bias bound max(2x², 2e4·x⁴) = 1e-4, x = hΔt/ħ, h = 1: Δt = 0.00707, far above the grid rule
-    assert fine.dt_chosen and fine.dt == pytest.approx(math.sqrt(0.5e-4), rel=0.02)
+    # with the sink, the bound max(0.5x², 0.3x²) = 1e-4, x = hΔt/ħ, h = 1: Δt = 0.0141, far
+    # above the grid rule
+    assert fine.sink is not None
+    assert fine.dt_chosen and fine.dt == pytest.approx(math.sqrt(2e-4), rel=0.02)
     assert fine.dt > 20 * grid_rule and fine.flux_band is not None
     assert not fine.errors() and not fine.warnings()
     # on a coarse grid the grid rule (Δt·(E_max + ΔV)/ħ = π/2) is the larger: unchanged
@@ -123,22 +125,26 @@ def reflection_predictions(k0, sigma):
     return {"centroid": centroid, "arrival": arrival, "spectral": arrival}
 
 
-def test_the_filter_keeps_the_arrival_method_right_past_the_grid_limit():
-    # at Δt·(E_max + ΔV)/ħ = 8 the grid holds the sidebands: the plain current is
-    # swamped (+37 % measured), the band-filtered one agrees with the centroid
+def test_the_filter_or_the_sink_keeps_the_arrival_method_right_past_the_grid_limit():
+    # at Δt·(E_max + ΔV)/ħ = 8 the grid holds the sidebands: with neither the filter nor
+    # the sink the plain current is swamped (+37 % measured); either one alone puts the
+    # arrival delay beside the centroid's
     from dataclasses import replace
     probe = build(step(2048))
     dt = 8.0 / (probe.grid.kinetic_max(1.0, 1.0) + 1.0)
     s = build(step(2048, f", dt: {dt!r}"))
-    assert s.flux_band is not None
+    assert s.flux_band is not None and s.sink is not None
     expected = reflection_predictions(abs(s.packet.k0), 20.0)
     results = {}
-    for name, setup in (("filtered", s), ("plain", replace(s, flux_band=None))):
+    for name, setup in (("filtered", replace(s, sink=None)), ("sunk", replace(s, flux_band=None)),
+                        ("neither", replace(s, flux_band=None, sink=None))):
         measured = measure_delays(run_in_memory(setup)).reflection.measured
         results[name] = {m: measured[m].delay / expected[m] - 1 for m in ("centroid", "arrival")}
-    f, p = results["filtered"], results["plain"]
-    assert abs(f["arrival"] - f["centroid"]) < 2e-3, results
-    assert abs(f["centroid"]) < 2e-2                  # the grid's and step's own error here
+    for name in ("filtered", "sunk"):
+        r = results[name]
+        assert abs(r["arrival"] - r["centroid"]) < 2e-3, results
+        assert abs(r["centroid"]) < 2e-2                  # the grid's and step's own error here
+    p = results["neither"]
     assert abs(p["arrival"] - p["centroid"]) > 0.1, results
 
 

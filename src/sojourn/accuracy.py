@@ -9,12 +9,13 @@ The error model (measured in benchmarks/dt_scan.py):
    span is shifted (by less than half a cell, its length kept) to put the first
    jump the packet meets on a grid point (`aligned_span`): a grid point of N
    points is one of 2N, so halving Δx keeps it there;
-2. the time step: `timestep.bias`, (h_eff·Δt/ħ)² at sharp features, with the
-   band rule as a cap; a scheme's largest sub-step |w|·Δt is what the kicks see.
-ε is shared: GRID_SHARE·ε to the grid, TIME_SHARE·ε to the time step; the rest
-is left for the methods' own errors (tails, sampling). Among the candidate
-point counts (2^a and 3·2^a) the fewest that reach the grid share are taken,
-and of the schemes the one with the least FFT work for the time share."""
+2. the time step: `timestep.bias`, x² (Strang) or x⁴ (Yoshida-4), x =
+   h_eff·Δt/ħ at sharp features, with the band rule as a cap; a scheme's
+   largest sub-step |w|·Δt is what the kicks see (the sink takes the
+   sidebands, `timestep.sideband_sink`).
+Of BUDGET·ε, the grid takes its error at each candidate point count (2^a and
+3·2^a, from the fewest that resolve the band) and the time step the rest; the
+count and scheme with the least FFT work win."""
 from __future__ import annotations
 
 import math
@@ -32,10 +33,13 @@ from .model import packets
 from .model.grid import Grid
 
 DEFAULT_ACCURACY = 1e-3    # what grid.points: auto aims at without evolve.accuracy
-GRID_SHARE = 0.4           # of ε, for the grid's Δx² error
-TIME_SHARE = 0.4           # of ε, for the time step's bias
-GRID_SAFETY = 1.5          # the rendering estimate was 0.8–1 × the measured jump error with
-                           # the jump on a grid point, 2–4 × above it for the barrier
+BUDGET = 0.9               # of ε, for the grid's error and the time step's bias together; the
+                           # rest is left for the methods' own errors (tails, sampling)
+FLOOR_SHARE = 0.1          # of the budget: the least the time step is given, and the grid
+                           # error below which finer grids are not tried
+GRID_SAFETY = 1.25         # the rendering estimate over the measured jump error, the jump on a
+                           # grid point (unit step, Strang at Δt 0.0012–0.03 with the sink):
+                           # 1.2 at N = 8192, 1.1 at 12288, 0.9 at 16384
 MAX_AUTO_POINTS = 2 ** 22  # auto stops here (and says the accuracy is out of reach)
 
 
@@ -95,45 +99,48 @@ def grid_error(potential, info, grid: Grid, V, hbar, mass, reference) -> float:
 
 
 def plan(span, points, dt, scheme, target, potential, info, hbar, mass,
-         reference) -> Plan:
+         reference, sinkable: bool = True) -> Plan:
     """Choose what the request leaves open: `points` (an int, or 'auto'), `dt`
     (a number, or None) and `scheme` (a name, or None: the cheapest) for a
-    relative accuracy `target`."""
+    relative accuracy `target`, at the least FFT work (points × drifts / Δt)
+    with grid error + time-step bias ≤ BUDGET·target."""
     if not 0 < target < 1:
         raise ValueError(f"accuracy must lie in (0, 1), got {target!r}")
-    right_moving = info.k0 >= 0
+    auto = points == "auto"
     support = None if potential.confining else potential.support()
-    if points == "auto":
+    budget = BUDGET * target
+    if auto:
         lowest = float(np.min(potential(np.linspace(span[0], span[1], 4097))))
         k = timestep.band_top(info, min(lowest, info.level), hbar, mass)
-        fewest = int(math.ceil((span[1] - span[0]) * RESOLUTION_MARGIN * k / math.pi))
-        for n in candidate_points(fewest):
-            grid = Grid(*aligned_span(span, n, potential.jumps(), right_moving), n)
-            V = potential.on_grid(grid.x, grid.dx)
-            g_err = grid_error(potential, info, grid, V, hbar, mass, reference)
-            if g_err <= GRID_SHARE * target:
-                break
+        counts = candidate_points(int(math.ceil((span[1] - span[0]) * RESOLUTION_MARGIN
+                                                * k / math.pi)))
     else:
-        grid = Grid(float(span[0]), float(span[1]), int(points))
+        counts = [int(points)]
+    best = None
+    for n in counts:
+        grid = Grid(*aligned_span(span, n, potential.jumps(), info.k0 >= 0), n) if auto \
+            else Grid(float(span[0]), float(span[1]), n)
         V = potential.on_grid(grid.x, grid.dx)
         g_err = grid_error(potential, info, grid, V, hbar, mass, reference)
-    best = None
-    for name in ([scheme] if scheme else list(SCHEMES)):
-        s = SCHEMES[name]
-        widest = max(abs(w) for w in s.drifts)   # the kicks see sub-steps of |w|·Δt
-        if dt is None:
-            step, _ = timestep.choose(grid, info, V, support, hbar, mass,
-                                      TIME_SHARE * target, s.order)
-            step = step / widest if widest > 1 else step
-        else:
-            step = dt
-        t_err = timestep.bias(grid, info, V, support, hbar, mass, step * widest)
-        work = len(s.drifts) / step
-        if best is None or work < best[0]:
-            best = (work, name, step, t_err)
-    _, name, step, t_err = best
+        room = max(budget - g_err, FLOOR_SHARE * budget)
+        for name in ([scheme] if scheme else list(SCHEMES)):
+            s = SCHEMES[name]
+            if dt is None:
+                step, t_err = timestep.choose(grid, info, V, support, hbar, mass, room,
+                                              s.order, s.widest, sinkable)
+            else:
+                step = dt
+                t_err = timestep.bias(grid, info, V, support, hbar, mass, dt * s.widest, s.order,
+                                      timestep.sinks(grid, info, V, hbar, mass, dt, sinkable))
+            work = n * len(s.drifts) / step
+            option = (g_err + t_err > budget, work, grid, name, step, g_err, t_err)
+            if best is None or option[:2] < best[:2]:
+                best = option
+        if g_err <= FLOOR_SHARE * budget:
+            break    # finer grids leave the time step little more room: they only cost more
+    missed, _, grid, name, step, g_err, t_err = best
     return Plan(target, grid.points, (grid.left, grid.right), grid.left - float(span[0]),
-                step, name, g_err, t_err, g_err <= GRID_SHARE * target or points != "auto")
+                step, name, g_err, t_err, not (auto and g_err > budget))
 
 
 def plan_scenario(scenario, potential, reference_of):
@@ -152,7 +159,7 @@ def plan_scenario(scenario, potential, reference_of):
         else scenario.evolve.scheme
     chosen = plan(scenario.grid.span, scenario.grid.points, scenario.evolve.dt, scheme, target,
                   potential, info, scenario.hbar, scenario.particle_mass,
-                  reference_of(scenario, potential, info))
+                  reference_of(scenario, potential, info), sinkable=not potential.driven)
     grid = scenario.grid.model_copy(update={"points": chosen.points, "span": chosen.span})
     evolve = scenario.evolve.model_copy(update={"scheme": chosen.scheme})
     return chosen, scenario.model_copy(update={"grid": grid, "evolve": evolve})

@@ -18,7 +18,6 @@ from typing import Callable, Optional
 import numpy as np
 
 from .build import Setup, build
-from .engine.propagate import Propagator
 from .engine.sampler import Sampler
 from .config.scenario import loads
 from .errors import BenchError
@@ -113,10 +112,7 @@ def sojourn_loop(setup: Setup, threads: Optional[int] = None,
                  sampled: bool = True) -> tuple[Callable[[int], None], int]:
     """A callable running `steps` sojourn steps (with the run loop's sampler at
     its default rate, unless not `sampled`), and the number of threads its FFTs use."""
-    single = setup.scenario.evolve.precision == "single"
-    prop = Propagator(setup.grid, setup.V, setup.hbar, setup.mass, setup.dt,
-                      setup.scenario.evolve.scheme, setup.W, single=single, threads=threads,
-                      drive=setup.drive)
+    prop = setup.propagator(threads)
     prop.set_state(setup.psi0())
     sampler = Sampler(setup)
     state = {"step": 0}

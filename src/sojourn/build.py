@@ -14,14 +14,14 @@ from .model.grid import Grid, PlaneGrid
 from .model.potentials import Potential
 from .model.absorber import absorber_profile, default_absorber_strength
 from .model.spin import clock_region, spin_potentials
-from .engine.propagate import TimeDependence
+from .engine.propagate import SCHEMES, Propagator, TimeDependence
 from .config.scenario import Scenario
 from .errors import ScenarioError
 from .guards import Finding, guard, refuse_endless, refuse_oversized, time_step_limit
 from .guards_drive import STEPS_PER_PERIOD, drive_findings
 from .planar import guard_plane, plane_absorber, plane_point, plane_values
-from .timestep import GRID_PHASE, band_energy_range, choose as choose_dt, flux_band
-from .engine.propagate import ORDER
+from .timestep import (GRID_PHASE, band_energy_range, choose as choose_dt, flux_band,
+                       sideband_sink, sink_rates)
 from .accuracy import plan_findings, plan_scenario
 from .passages import default_detectors, packet_band, resolve_auto
 
@@ -50,6 +50,15 @@ class Setup:
     flux_band: Optional[tuple[float, float]] = None   # (k_pass, k_stop) of the detectors' filter
     dt_error: float = 0.0     # a chosen Δt's estimated relative delay bias (timestep.choose)
     accuracy: Optional[object] = None   # the accuracy.Plan, when evolve.accuracy / auto chose
+    sink: Optional[tuple] = None   # (k_start, k_full, rate) of the sideband sink (timestep)
+
+    def propagator(self, threads: Optional[int] = None) -> Propagator:
+        """The run's propagator: its grid, V, absorber, scheme, drive and sink."""
+        return Propagator(self.grid, self.V, self.hbar, self.mass, self.dt,
+                          self.scenario.evolve.scheme, self.W,
+                          single=self.scenario.evolve.precision == "single", threads=threads,
+                          drive=self.drive,
+                          sink=None if self.sink is None else sink_rates(self.grid.k, self.sink))
 
     @property
     def band_phase(self) -> float:
@@ -202,9 +211,11 @@ def _build(scenario: Scenario) -> Setup:
         elif plane:
             dt = GRID_PHASE * hbar / (kinetic_max + v_range)
         else:
+            scheme = SCHEMES[scenario.evolve.scheme]
             dt, dt_error = choose_dt(grid, info, V, None if potential.confining
                                      else potential.support(), hbar, mass,
-                                     order=ORDER[scenario.evolve.scheme])
+                                     order=scheme.order, widest=scheme.widest,
+                                     sinkable=not potential.driven)
         dt = min([dt] + [d.period / STEPS_PER_PERIOD for d, _ in potential.drives()])
         dt_chosen = True
     else:
@@ -268,7 +279,9 @@ def _build(scenario: Scenario) -> Setup:
     drive = TimeDependence.of_potential(potential, grid.x, grid.dx) if potential.driven else None
     setup = Setup(scenario, grid, potential, V, W, info, dt, dt_chosen, steps, record_steps,
                   sample_steps, detectors, reference, region, findings, drive, transverse,
-                  None if plane else flux_band(grid, info, V, hbar, mass, dt), dt_error)
+                  None if plane else flux_band(grid, info, V, hbar, mass, dt), dt_error,
+                  sink=None if plane or potential.driven
+                  else sideband_sink(grid, info, V, hbar, mass, dt))
     (guard_plane if plane else guard)(setup, limit, absorber_width)
     drive_findings(setup)
     if plan is not None:

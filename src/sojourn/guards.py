@@ -15,7 +15,7 @@ from .errors import ScenarioError
 from .findings import Finding
 from .grid_error import RENDERING_WARN, RENDERING_WARN_LEVEL, grid_findings
 from .model import packets
-from .engine.propagate import Propagator
+from .engine.propagate import SCHEMES, Propagator
 from .model.grid import Grid
 from .store import layout
 from . import timestep
@@ -239,7 +239,11 @@ def _time_step(s, limit: float, add) -> None:
     and, past the grid limit, against the bias the sidebands it opens at sharp
     features cause (PHYSICS §3, "Time step and the populated band")."""
     phase, band_phase, units = s.grid_phase, s.band_phase, s.scenario.unit_system
-    safe, _ = timestep.choose(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass)
+    scheme = SCHEMES[s.scenario.evolve.scheme]
+    sinkable = not s.potential.driven
+    sunk = timestep.sinks(s.grid, s.packet, s.V, s.hbar, s.mass, s.dt, sinkable)
+    safe, _ = timestep.choose(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass,
+                              order=scheme.order, widest=scheme.widest, sinkable=sinkable)
     if s.dt_chosen:
         bias = f", estimated bias ≤ {s.dt_error:.1e}" if s.dt_error else ""
         add(Finding("info", "evolve.dt",
@@ -255,11 +259,13 @@ def _time_step(s, limit: float, add) -> None:
         return
     if phase <= math.pi:
         return
-    bias = timestep.bias(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass, s.dt)
+    bias = timestep.bias(s.grid, s.packet, s.V, s.potential.support(), s.hbar, s.mass,
+                         s.dt * scheme.widest, scheme.order, sunk)
     h = timestep.sharpness(s.V, s.grid.dx, s.potential.support(), s.grid.left, 0.0)
     grid_limit = time_step_limit(s.grid.kinetic_max(s.hbar, s.mass), float(np.ptp(s.V)), s.hbar)
     if phase >= 2 * math.pi and bias > RENDERING_WARN_LEVEL:
-        allowed = min(max(grid_limit, timestep.largest_dt(h, RENDERING_WARN_LEVEL, s.hbar)),
+        allowed = min(max(grid_limit, timestep.largest_dt(h, RENDERING_WARN_LEVEL, s.hbar,
+                                                           scheme.order, sunk) / scheme.widest),
                       limit)
         add(Finding("error", "evolve.dt",
                     f"dt = {s.dt:g} is past the grid limit Δt·(E_max + V_max − V_min)/ħ < 2π "

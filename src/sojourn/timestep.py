@@ -12,9 +12,14 @@ benchmarks/dt_scan.py:
 2. fast sideband components cross the detectors and swamp the flux: the
    detectors read the state filtered to the band (`flux_band`), which is
    exact for the band and blind to the sidebands;
-3. the sidebands bias every delay by up to the larger of
-   LEAK_COEFFICIENT·x² and RESONANT_COEFFICIENT·x⁴ (relative), x = h_eff·Δt/ħ,
-   h_eff the sharpness of V (`sharpness`): the default Δt keeps this below
+3. the sidebands' waves, fast enough to pass the absorbing layers, wrap round
+   the box and return to the jump, where their interference with the packet
+   biased delays by up to RESONANT_COEFFICIENT·x⁴ (x = h_eff·Δt/ħ, h_eff the
+   sharpness of V, `sharpness`), changing sign within 0.1 % of Δt: the sink
+   (`sideband_sink`, a damping rate in k far above the band, free of cost in
+   the kinetic factor) takes them out first, and what is left is smooth in
+   Δt — SUNK_COEFFICIENT·x² for Strang, FOURTH_ORDER_COEFFICIENT·x⁴ for
+   Yoshida-4 (`time_error`). The default Δt keeps this below
    DEFAULT_TIME_ERROR, and never goes below the old grid rule."""
 from __future__ import annotations
 
@@ -26,14 +31,18 @@ import numpy as np
 BAND_WIDTHS = 8.0          # the populated band: |k₀| ± 8σ_k (|ψ̃₀|² below e^-32 beyond)
 GRID_PHASE = math.pi / 2   # the grid rule: Δt·(E_max + ΔV)/ħ = π/2 (no sideband on the grid)
 BAND_PHASE = math.pi / 4   # the band rule: Δt·(E_top + ΔV)/ħ ≤ π/4 (in-band splitting error)
-LEAK_COEFFICIENT = 2.0     # relative delay bias ≲ 2·(h_eff Δt/ħ)²: the unit step gave 0.3–0.4 on a
-                           # coarse scan, the barrier 0.1–0.9, and a fine scan in Δt on the unit
-                           # step (N = 16384) a spread of 2·(hΔt)² at Δt ≈ 0.01 ...
-RESONANT_COEFFICIENT = 2e4  # ... that grows as (hΔt)⁴ further up: ±2.6e-3 at Δt ≈ 0.02, changing
-                           # sign within 0.1 % of Δt (the sidebands' waves interfere with the
-                           # packet: their phase ∝ 1/Δt); the bias bound is the larger of the two
-SIDEBAND_SHARE = 0.3       # probability the sidebands carry off ≈ 0.3·(h_eff Δt/ħ)² at most (the
-                           # unit step: 0.03–0.1 near the default Δt, up to 0.3 far past it)
+LEAK_COEFFICIENT = 2.0     # without the sink, relative delay bias ≲ 2·(h_eff Δt/ħ)²: a fine scan in
+                           # Δt on the unit step (N = 16384) spread by 2·(hΔt)² at Δt ≈ 0.01 ...
+RESONANT_COEFFICIENT = 2e4  # ... and by (hΔt)⁴ further up: ±2.6e-3 at Δt ≈ 0.02, changing sign
+                           # within 0.1 % of Δt (the sidebands' waves interfere with the packet:
+                           # their phase ∝ 1/Δt); the bias bound is the larger of the two
+SUNK_COEFFICIENT = 0.5     # with the sink, Strang: smooth, −0.37·x² on the unit step (Δt 0.016–0.04,
+                           # N = 8192) and −0.10…−0.14·x² on the barrier (h_eff = 2, Δt 0.02–0.03)
+FOURTH_ORDER_COEFFICIENT = 1.0  # with the sink, Yoshida-4 (x of its widest sub-step, 1.70·Δt):
+                           # +0.4…+0.7·x⁴ on the barrier (x = 0.17–0.34), far less on the unit step
+SIDEBAND_SHARE = 0.3       # probability the sidebands carry off ≈ 0.3·(h_eff Δt/ħ)² at most (Δt the
+                           # widest sub-step; the unit step with the sink: 0.33–0.34 for Strang at
+                           # Δt 0.02–0.04, 0.23 for Yoshida-4 at Δt 0.08, from the norm lost)
 DEFAULT_TIME_ERROR = 1e-4  # the default Δt aims at this relative bias from the sidebands
 FILTER_ROOM = 1.5          # the filter needs k_stop ≥ 1.5·k_pass
 
@@ -95,18 +104,34 @@ def sharpness(V: np.ndarray, dx: float, support, x_left: float, q_min: float) ->
     return float(above.max()) if above.size else 0.0
 
 
-def time_error(h_eff: float, dt: float, hbar: float) -> float:
-    """The estimated relative delay bias at this Δt: the larger of
-    LEAK_COEFFICIENT·x² and RESONANT_COEFFICIENT·x⁴, x = h_eff·Δt/ħ."""
-    x2 = (h_eff * dt / hbar) ** 2
-    return max(LEAK_COEFFICIENT * x2, RESONANT_COEFFICIENT * x2 * x2)
+def _terms(order: int, sunk: bool) -> tuple[tuple[float, int], ...]:
+    """(coefficient, power of x) of the error bound: its largest term counts.
+    The probability the sidebands take from the packet (SIDEBAND_SHARE·x²,
+    which the channels' probabilities lose) is one of them."""
+    if not sunk:
+        return (LEAK_COEFFICIENT, 2), (RESONANT_COEFFICIENT, 4)
+    delays = (FOURTH_ORDER_COEFFICIENT, 4) if order >= 4 else (SUNK_COEFFICIENT, 2)
+    return delays, (SIDEBAND_SHARE, 2)
 
 
-def largest_dt(h_eff: float, target: float, hbar: float) -> float:
-    """The largest Δt with time_error ≤ target (inf for a potential without features)."""
+def time_error(h_eff: float, dt: float, hbar: float, order: int = 2,
+               sunk: bool = True) -> float:
+    """The estimated relative error of delays and probabilities at a (sub-)step
+    Δt, x = h_eff·Δt/ħ: with the sink, SUNK_COEFFICIENT·x² (second order) or
+    FOURTH_ORDER_COEFFICIENT·x⁴ (fourth) on the delays, and the SIDEBAND_SHARE·x²
+    the sidebands take; without it the larger of LEAK_COEFFICIENT·x² and
+    RESONANT_COEFFICIENT·x⁴."""
+    x = h_eff * dt / hbar
+    return max(c * x ** p for c, p in _terms(order, sunk))
+
+
+def largest_dt(h_eff: float, target: float, hbar: float, order: int = 2,
+               sunk: bool = True) -> float:
+    """The largest (sub-)step with time_error ≤ target (inf for a potential
+    without features)."""
     if h_eff <= 0:
         return math.inf
-    x = min(math.sqrt(target / LEAK_COEFFICIENT), (target / RESONANT_COEFFICIENT) ** 0.25)
+    x = min((target / c) ** (1.0 / p) for c, p in _terms(order, sunk))
     return x * hbar / h_eff
 
 
@@ -115,37 +140,85 @@ def grid_rule(kinetic_max: float, v_range: float, hbar: float) -> float:
     return GRID_PHASE * hbar / (kinetic_max + v_range)
 
 
-def bias(grid, info, V, support, hbar, mass, dt) -> float:
-    """The estimated relative delay bias a Δt causes: LEAK_COEFFICIENT·(h_eff Δt/ħ)²
-    with h_eff over all wavenumbers. At a jump it is the sidebands' bias (and
-    below the grid limit the jump's near field at the grid's top wavenumbers;
-    both go as (hΔt)², benchmarks/dt_scan.py); for a smooth feature the same
-    form bounds the in-band splitting error (the smooth step of
-    configs/smooth_step.yaml gave 0.012·(hΔt/ħ)²: the bound is conservative)."""
-    return time_error(sharpness(V, grid.dx, support, grid.left, 0.0), dt, hbar)
+def bias(grid, info, V, support, hbar, mass, dt, order: int = 2,
+         sunk: bool = True) -> float:
+    """The estimated relative delay bias a (sub-)step Δt causes (`time_error`
+    with h_eff over all wavenumbers). At a jump it is the sidebands' bias (and
+    below the grid limit the jump's near field at the grid's top wavenumbers,
+    benchmarks/dt_scan.py); for a smooth feature the same form bounds the
+    in-band splitting error (the smooth step of configs/smooth_step.yaml gave
+    0.012·(hΔt/ħ)²: the bound is conservative). `sunk`: the run has a sink,
+    or no sideband fits on its grid (`sinks`)."""
+    return time_error(sharpness(V, grid.dx, support, grid.left, 0.0), dt, hbar, order, sunk)
+
+
+def band_rule(info, V, hbar, mass, order: int = 2) -> float:
+    """The band rule's Δt, scaled to the scheme's order (a fourth-order scheme
+    takes twice the band phase)."""
+    return BAND_PHASE * (2.0 if order >= 4 else 1.0) * hbar / band_energy_range(
+        info, V, hbar, mass)
 
 
 def choose(grid, info, V, support, hbar, mass, target: float = DEFAULT_TIME_ERROR,
-           order: int = 2) -> tuple[float, float]:
+           order: int = 2, widest: float = 1.0, sinkable: bool = True) -> tuple[float, float]:
     """(Δt, estimated relative bias) for a target: the largest Δt whose bias
-    (`bias`) stays below `target`, capped by the band rule (scaled to the
-    scheme's order: a fourth-order scheme takes twice the band phase), and
-    never below the grid rule (the old default, whose bias is below the grid's
-    own Δx² error wherever the grid rule is the larger; on a resolved grid it
-    keeps the band's phase below π/2 too)."""
-    e_band = band_energy_range(info, V, hbar, mass)
-    band_dt = BAND_PHASE * (2.0 if order >= 4 else 1.0) * hbar / e_band
+    (`bias`, at the scheme's widest sub-step widest·Δt) stays below `target`,
+    capped by the band rule, and never below the grid rule (the old default,
+    whose bias is below the grid's own Δx² error wherever the grid rule is the
+    larger; on a resolved grid it keeps the band's phase below π/2 too).
+    `sinkable`: the run may have a sink (not a driven potential)."""
     safe_dt = grid_rule(grid.kinetic_max(hbar, mass), float(np.ptp(V)), hbar)
     h = sharpness(V, grid.dx, support, grid.left, 0.0)
-    leak_dt = largest_dt(h, target, hbar)
-    dt = max(safe_dt, min(band_dt, leak_dt))
-    return dt, time_error(h, dt, hbar)
+    cap = band_rule(info, V, hbar, mass, order)
+    dt = max(safe_dt, min(cap, largest_dt(h, target, hbar, order, sinkable) / widest))
+    sunk = sinks(grid, info, V, hbar, mass, dt, sinkable)
+    if not sunk:    # the sink's room is gone at this Δt: the bound without it
+        dt = max(safe_dt, min(cap, largest_dt(h, target, hbar, order, False) / widest))
+    return dt, time_error(h, dt * widest, hbar, order, sunk)
 
 
-def sideband_share(info, V, dx, support, x_left, hbar, mass, dt) -> float:
+def sideband_share(info, V, dx, support, x_left, hbar, mass, dt, widest: float = 1.0) -> float:
     """The probability the time step's sidebands may carry off (0 where none
     fits on a grid of spacing dx): what a channel theory closes may receive."""
     if support is None or sideband_wavenumber(info, V, hbar, mass, dt) >= math.pi / dx:
         return 0.0
     h = sharpness(V, dx, support, x_left, 0.0)
-    return SIDEBAND_SHARE * (h * dt / hbar) ** 2
+    return SIDEBAND_SHARE * (h * widest * dt / hbar) ** 2
+
+
+
+
+SINK_START = 0.5           # the sink starts at half the first sideband's wavenumber ...
+SINK_CROSSINGS = 40.0      # ... and takes a sideband's amplitude down by e^-40 per box crossing
+
+
+def sinks(grid, info, V, hbar, mass, dt, sinkable: bool = True) -> bool:
+    """Whether the run's sidebands are harmless: none fits on the grid, or the
+    sink takes them (there is room for it above the band)."""
+    if sideband_wavenumber(info, V, hbar, mass, dt) >= grid.k_max:
+        return True
+    return sinkable and flux_band(grid, info, V, hbar, mass, dt) is not None
+
+
+def sideband_sink(grid, info, V, hbar, mass, dt) -> Optional[tuple[float, float, float]]:
+    """(k_start, k_full, rate) of the sink (`sink_rates`): zero on the band and
+    up to SINK_START·k_side, rising smoothly to `rate` at the first sideband's
+    wavenumber k_side. The sidebands a sharp jump feeds at every step then die
+    before they wrap round the box and return to the jump. The band is
+    untouched, and the near field of a jump that far above the band is tiny:
+    moving the sink's start from 0.25 to 0.85·k_side changed the unit step's
+    delays by < 2e-6 (benchmarks/dt_scan.py). None where no sideband fits."""
+    band = flux_band(grid, info, V, hbar, mass, dt)
+    if band is None:
+        return None
+    k_side = band[1]
+    return (max(SINK_START * k_side, FILTER_ROOM * band[0]), k_side,
+            SINK_CROSSINGS * hbar * k_side / mass / grid.length)
+
+
+def sink_rates(k: np.ndarray, sink: tuple[float, float, float]) -> np.ndarray:
+    """γ(k) ≥ 0 of a sink (k_start, k_full, rate): 0 below k_start, sin² up to
+    `rate` at k_full and beyond; the propagator damps by e^{−γΔt} per step."""
+    k_start, k_full, rate = sink
+    ramp = np.clip((np.abs(k) - k_start) / (k_full - k_start), 0.0, 1.0)
+    return rate * np.sin(0.5 * math.pi * ramp) ** 2

@@ -29,7 +29,6 @@ from typing import Callable, Optional
 
 from ..errors import NonFinite
 from . import observables as obs
-from .propagate import Propagator
 from .sampler import Sampler
 
 
@@ -70,12 +69,9 @@ def evolve(setup, recorder, state: Optional[dict] = None,
     if state is not None and not (set(state) >= {"step", "psi", "raw_absorbed"}
                                   and 0 <= state["step"] <= setup.steps):
         raise ValueError("a checkpoint state needs step (within the run), psi and raw_absorbed")
-    sc = setup.scenario
     watch = _Watch(stop, checkpoint_seconds) if (stop or checkpoint_seconds) else None
     try:
-        prop = Propagator(setup.grid, setup.V, setup.hbar, setup.mass, setup.dt,
-                          sc.evolve.scheme, setup.W, single=sc.evolve.precision == "single",
-                          drive=getattr(setup, "drive", None))
+        prop = setup.propagator()
         if state is not None:
             sampler = Sampler(setup, state["raw_absorbed"], prop.closing_kick)
             step = int(state["step"])

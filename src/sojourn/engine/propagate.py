@@ -53,6 +53,11 @@ class Scheme:
     drifts: tuple[float, ...]
     order: int
 
+    @property
+    def widest(self) -> float:
+        """The largest |w_j|: the kicks of a step see sub-steps up to widest·Δt."""
+        return max(abs(w) for w in self.drifts)
+
 
 @dataclass(frozen=True)
 class TimeDependence:
@@ -180,7 +185,8 @@ class Propagator:
 
     def __init__(self, grid, V, hbar: float, mass: float, dt: float, scheme: str = "strang",
                  absorber: Optional[np.ndarray] = None, single: bool = False,
-                 threads: Optional[int] = None, drive: Optional[TimeDependence] = None):
+                 threads: Optional[int] = None, drive: Optional[TimeDependence] = None,
+                 sink: Optional[np.ndarray] = None):
         weights = _known(scheme).drifts
         if drive is not None and not isinstance(drive, TimeDependence):
             raise ValueError(f"drive must be a TimeDependence or None (got {type(drive).__name__})")
@@ -199,7 +205,10 @@ class Propagator:
         W = None if absorber is None else _on_grid("the absorber W", absorber, space)
         if W is not None and np.any(W < 0):
             raise ValueError("the absorber W must be ≥ 0 (it removes probability)")
-        self.grid, self.scheme, self.absorber = grid, scheme, W
+        G = None if sink is None else _on_grid("the sideband sink", sink, tuple(grid.k_squared.shape))
+        if G is not None and np.any(G < 0):
+            raise ValueError("the sideband sink must be ≥ 0 (it removes probability)")
+        self.grid, self.scheme, self.absorber, self.sink = grid, scheme, W, G
         dtype = np.complex64 if single else np.complex128
         self.fft = FFTPair(shape, dtype=dtype, threads=threads,
                            axes=tuple(range(len(lead), len(shape))))
@@ -212,7 +221,10 @@ class Propagator:
             return np.exp(-1j * U * (c * dt / hbar)).astype(dtype)
 
         def drift(c):
-            return (np.exp(-1j * hbar * grid.k_squared * (c * dt) / (2 * mass)) / points).astype(dtype)
+            phase = -1j * hbar * grid.k_squared * (c * dt) / (2 * mass)
+            if G is not None:     # a sink only damps: |c| for the backward drifts of Yoshida-4
+                phase = phase - G * (abs(c) * dt)
+            return (np.exp(phase) / points).astype(dtype)
 
         self._first = kick(weights[0] / 2)          # opens a stretch of steps
         self._last = self._first                    # closes it: the same factor (rule 3), one array

@@ -12,6 +12,7 @@ import numpy as np
 
 from ..theory.averages import ABOVE_TOP_WARN, share_above_top as theory_share
 from .. import timestep
+from ..engine.propagate import SCHEMES
 from .frame import K_SPAN, ForwardRun
 from .report import ChannelReport
 
@@ -26,7 +27,13 @@ def spurious_share(run: ForwardRun) -> float:
     """The probability the time step's sidebands may carry into a channel
     theory closes (timestep.sideband_share, over the potential x_r … x_t)."""
     return timestep.sideband_share(run.info, run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]),
-                                   run.hbar, run.mass, run.dt)
+                                   run.hbar, run.mass, run.dt, _scheme(run).widest)
+
+
+def _scheme(run: ForwardRun):
+    """The run's splitting scheme (Strang where the run file does not say)."""
+    attrs = getattr(run.states, "attrs", None) or {}
+    return SCHEMES.get(str(attrs.get("scheme", "strang")), SCHEMES["strang"])
 
 
 def channel_floor(run: ForwardRun, closed: bool) -> float:
@@ -124,7 +131,10 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
     phase = run.grid_phase
     if phase > math.pi:
         h = timestep.sharpness(run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]), 0.0)
-        bias = timestep.time_error(h, run.dt, hbar)
+        scheme = _scheme(run)
+        sunk = "sideband_sink" in (getattr(run.states, "attrs", None) or {}) or timestep.sideband_wavenumber(
+            info, run.V, hbar, m, run.dt) >= math.pi / run.dx
+        bias = timestep.time_error(h, run.dt * scheme.widest, hbar, scheme.order, sunk)
         if bias > TIME_BIAS_WARN:
             warnings.append(f"the time step is large for the potential's sharp features: "
                             f"Δt·(E_max + ΔV)/ħ = {phase:.3g} > π, and the spurious high-k "

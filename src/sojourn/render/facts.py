@@ -2,6 +2,7 @@
 scenario's units; the one place in render that opens run files."""
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import dataclass, field
 from typing import Optional
@@ -38,6 +39,7 @@ class RunFacts:
     far_edge: float = 0.0          # where the potential ends on the transmission side
     components: Optional[np.ndarray] = None   # a spinor run's V per component (2, N); V is their mean
     clock: Optional[tuple] = None  # a spinor run's Larmor clock: ((start, end), ω_L)
+    sink: Optional[tuple] = None   # the run's sideband sink (k_start, k_full, rate), if any
 
 
 def run_facts(run: RunFile) -> RunFacts:
@@ -68,7 +70,9 @@ def run_facts(run: RunFile) -> RunFacts:
                     scattering=not confining and info.k0 != 0, absorber=W,
                     dt=float(attrs.get("dt", 0.0)), scheme=str(attrs.get("scheme", "strang")),
                     single=str(attrs.get("precision", "double")) == "single",
-                    far_edge=float(edge), components=components, clock=clock)
+                    far_edge=float(edge), components=components, clock=clock,
+                    sink=tuple(json.loads(attrs["sideband_sink"])) if "sideband_sink" in attrs
+                    else None)
 
 
 def _clock(scenario, potential):

@@ -15,6 +15,7 @@ from ..engine.propagate import Propagator, TimeDependence
 from ..errors import RenderError
 from ..model.grid import Grid
 from ..store import RunFile
+from ..timestep import sink_rates
 from .facts import RunFacts
 
 MAX_FRAMES = 100_000
@@ -57,7 +58,8 @@ def propagated_states(run: RunFile, facts: RunFacts, wanted: np.ndarray
     driven = facts.potential is not None and facts.potential.driven
     drive = TimeDependence.of_potential(facts.potential, grid.x, grid.dx) if driven else None
     prop = Propagator(grid, V, facts.hbar, facts.mass, facts.dt, facts.scheme,
-                      facts.absorber, single=facts.single, drive=drive)
+                      facts.absorber, single=facts.single, drive=drive,
+                      sink=None if facts.sink is None else sink_rates(grid.k, facts.sink))
     wanted = np.asarray(wanted, float)
     nearest = np.searchsorted(times, wanted + 1e-9 * max(facts.dt, 1e-300), side="right") - 1
     nearest = np.clip(nearest, 0, len(times) - 1)

@@ -10,7 +10,8 @@ every reader checks on open (README.md describes it for people).
     /potential/x, V    (N,) float, V on ψ's axes (below); /potential/absorber (N,) float
                        when there is one
     /snapshots/x, t, step, psi  (N,), (S,), (S,), (S, *A) complex (single with record.precision:
-                       single, root attr "snapshot_precision") — S rows allocated at the
+                       single, root attr "snapshot_precision"; root attr "sideband_sink": [k_start, k_full,
+                       rate] of the damping in k a run with sidebands had) — S rows allocated at the
                        start; attrs "committed": how many rows hold committed snapshots, and
                        "axes": ψ's axes after t, space-separated names, outermost first
                        ("x"; "component x" for a spinor); each is a scale in /snapshots and
@@ -117,6 +118,8 @@ def root_attributes(setup, backend: str) -> dict:
         "mass_internal": float(setup.mass), "reference": float(setup.reference), "packet": json.dumps(setup.packet.__dict__),
         # snapshots stored below the state's precision (record.precision): said only then
         **({"snapshot_precision": "single"} if snapshot_dtype(setup) != psi_dtype(setup) else {}),
+        # the sideband sink (k_start, k_full, rate; timestep.sideband_sink): said only with one
+        **({"sideband_sink": json.dumps(list(setup.sink))} if setup.sink is not None else {}),
     }
 
 
