@@ -243,3 +243,18 @@ def test_accuracy_1e3_holds_on_the_unit_step_and_a_barrier():
     for channel in report.channels():          # every method against its own average
         for method, result in channel.measured.items():
             assert abs(result.relative) < 1e-3, (channel.channel, method, result.relative)
+
+
+def test_verify_sets_the_error_bars_beside_the_requested_accuracy(run_scenario):
+    # an auto grid at accuracy 1e-2: Richardson bars (N, 2N and Δt, Δt/2) within 1e-2 of
+    # each delay, and each delay within its bar of the closed-form packet average
+    # (dφ/dk = 2/κ, Cohen-Tannoudji, Diu, Laloë, Complement H_I; see reflection_predictions)
+    from sojourn.workflows import verify
+    setup, path = run_scenario(STEP.format(points="auto", evolve=", accuracy: 1e-2"))
+    report = verify(path).report
+    assert any("within the requested accuracy 0.01" in note for note in report.notes), report
+    expected = reflection_predictions(abs(setup.packet.k0), 20.0)
+    for method, result in report.reflection.measured.items():
+        assert result.error is not None and result.error <= 1e-2 * abs(result.delay)
+        assert abs(result.delay - expected[method]) <= result.error + 1e-3 * expected[method], \
+            (method, result.delay, expected[method], result.error)

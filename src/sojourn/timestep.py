@@ -92,6 +92,8 @@ def sharpness(V: np.ndarray, dx: float, support, x_left: float, q_min: float) ->
     the box edges, where no packet is, does not count."""
     if support is None:
         return 0.0
+    V = np.asarray(V)
+    V = V.reshape(-1, V.shape[-1]).mean(axis=0)   # a spinor's components V ± ħω_L/2: their mean
     i0 = max(int(math.floor((support[0] - x_left) / dx)) - 2, 0)
     i1 = min(int(math.ceil((support[1] - x_left) / dx)) + 3, len(V))
     steps = np.diff(V[i0:i1])
