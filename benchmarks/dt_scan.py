@@ -8,6 +8,13 @@ and the norm lost to the absorbers. One JSON object a line; `--table` turns a
 saved output into the Markdown table of RESULTS.md.
 
     nice python benchmarks/dt_scan.py --case step --points 1024 2048 > out.jsonl
+
+`--dts` gives time steps instead of phases, `--aligned` puts the jump on a grid
+point (accuracy.aligned_span, as `grid.points: auto` does), `--no-sink` runs
+without the sideband sink and `--sink-start` moves where it starts (a fraction
+of the first sideband's wavenumber):
+
+    nice python benchmarks/dt_scan.py --points 8192 --aligned --dts 0.016 0.02 --no-sink
 """
 from __future__ import annotations
 
@@ -16,7 +23,10 @@ import json
 import math
 import sys
 import time
+from dataclasses import replace
 
+from sojourn import timestep
+from sojourn.accuracy import aligned_span
 from sojourn.build import build
 from sojourn.config.scenario import loads
 from sojourn.measure.delays import measure_delays
@@ -49,22 +59,31 @@ record: {{every: 10.0}}
 PHASES = (math.pi / 8, math.pi / 2, math.pi, 2 * math.pi, 8.0, 16.0, 30.0)
 
 
-def scenario(case: str, points: int, dt: float, scheme: str = "strang", extra: str = ""):
-    return loads(CASES[case].format(points=points, dt="null" if dt is None else repr(dt), scheme=scheme, extra=extra),
-                 f"{case}.yaml")
+def scenario(case: str, points: int, dt: float, scheme: str = "strang", extra: str = "",
+             aligned: bool = False):
+    text = CASES[case].format(points=points, dt="null" if dt is None else repr(dt),
+                              scheme=scheme, extra=extra)
+    if aligned:
+        plain = loads(text, f"{case}.yaml")
+        span = aligned_span(plain.grid.span, points, [0.0])   # both cases' first jump is at 0
+        text = text.replace(str(list(plain.grid.span)).replace("'", ""), f"[{span[0]!r}, {span[1]!r}]")
+    return loads(text, f"{case}.yaml")
 
 
 def one(case: str, points: int, phase: float, scheme: str = "strang", extra: str = "",
-        dt: float | None = None) -> dict:
-    probe = build(scenario(case, points, 0.01, scheme, extra))
+        dt: float | None = None, aligned: bool = False, sink: bool = True) -> dict:
+    probe = build(scenario(case, points, 0.01, scheme, extra, aligned))
     e_range = probe.grid.kinetic_max(1.0, 1.0) + float(probe.V.max() - probe.V.min())
     dt = phase / e_range if dt is None and phase > 0 else dt
-    setup = build(scenario(case, points, dt, scheme, extra))   # dt None: the default
+    setup = build(scenario(case, points, dt, scheme, extra, aligned))   # dt None: the default
+    if not sink:
+        setup = replace(setup, sink=None)
     start = time.perf_counter()
     run = run_in_memory(setup)
     seconds = time.perf_counter() - start
     report = measure_delays(run)
     out = {"case": case, "points": points, "scheme": scheme, "phase": setup.grid_phase,
+           "span": [setup.grid.left, setup.grid.right], "sink": setup.sink, "sink_start": timestep.SINK_START,
            "default": setup.dt_chosen, "filtered": setup.flux_band is not None,
            "dt": setup.dt, "steps": setup.steps, "seconds": round(seconds, 2),
            "absorbed": float(1 - run.observables()["norm"][-1])}
@@ -105,15 +124,23 @@ def main(argv=None) -> None:
                         help="grid phases Δt·(E_max + ΔV)/ħ; 0 stands for the default Δt")
     parser.add_argument("--scheme", default="strang")
     parser.add_argument("--extra", default="", help="YAML lines appended to the scenario")
+    parser.add_argument("--dts", type=float, nargs="+", help="time steps (instead of phases)")
+    parser.add_argument("--aligned", action="store_true", help="the jump on a grid point")
+    parser.add_argument("--no-sink", action="store_true", help="without the sideband sink")
+    parser.add_argument("--sink-start", type=float, default=timestep.SINK_START,
+                        help="where the sink starts, a fraction of the first sideband's k")
     parser.add_argument("--table", metavar="JSONL", help="print a saved scan as Markdown")
     args = parser.parse_args(argv)
     if args.table:
         with open(args.table) as fh:
             print(table(fh))
         return
+    timestep.SINK_START = args.sink_start   # read by timestep.sideband_sink at build
+    steps = [(0.0, dt) for dt in args.dts] if args.dts else [(p, None) for p in args.phases]
     for points in args.points:
-        for phase in args.phases:
-            print(json.dumps(one(args.case, points, phase, args.scheme, args.extra)), flush=True)
+        for phase, dt in steps:
+            print(json.dumps(one(args.case, points, phase, args.scheme, args.extra, dt,
+                                 args.aligned, not args.no_sink)), flush=True)
 
 
 if __name__ == "__main__":

@@ -45,6 +45,8 @@ SIDEBAND_SHARE = 0.3       # probability the sidebands carry off ≈ 0.3·(h_eff
                            # Δt 0.02–0.04, 0.23 for Yoshida-4 at Δt 0.08, from the norm lost)
 DEFAULT_TIME_ERROR = 1e-4  # the default Δt aims at this relative bias from the sidebands
 FILTER_ROOM = 1.5          # the filter needs k_stop ≥ 1.5·k_pass
+SINK_START = 0.5           # the sink starts at half the first sideband's wavenumber ...
+SINK_CROSSINGS = 40.0      # ... and takes a sideband's amplitude down by e^-40 per box crossing
 
 
 def band_top(info, V_min: float, hbar: float, mass: float) -> float:
@@ -189,11 +191,6 @@ def sideband_share(info, V, dx, support, x_left, hbar, mass, dt, widest: float =
 
 
 
-
-SINK_START = 0.5           # the sink starts at half the first sideband's wavenumber ...
-SINK_CROSSINGS = 40.0      # ... and takes a sideband's amplitude down by e^-40 per box crossing
-
-
 def sinks(grid, info, V, hbar, mass, dt, sinkable: bool = True) -> bool:
     """Whether the run's sidebands are harmless: none fits on the grid, or the
     sink takes them (there is room for it above the band)."""
@@ -222,5 +219,6 @@ def sink_rates(k: np.ndarray, sink: tuple[float, float, float]) -> np.ndarray:
     """γ(k) ≥ 0 of a sink (k_start, k_full, rate): 0 below k_start, sin² up to
     `rate` at k_full and beyond; the propagator damps by e^{−γΔt} per step."""
     k_start, k_full, rate = sink
-    ramp = np.clip((np.abs(k) - k_start) / (k_full - k_start), 0.0, 1.0)
+    width = max(k_full - k_start, 1e-12 * k_full)   # k_start = k_full: a sharp edge
+    ramp = np.clip((np.abs(k) - k_start) / width, 0.0, 1.0)
     return rate * np.sin(0.5 * math.pi * ramp) ** 2

@@ -27,6 +27,8 @@ import math
 import time
 from typing import Callable, Optional
 
+from threadpoolctl import threadpool_limits
+
 from ..errors import NonFinite
 from . import observables as obs
 from .sampler import Sampler
@@ -70,8 +72,13 @@ def evolve(setup, recorder, state: Optional[dict] = None,
                                   and 0 <= state["step"] <= setup.steps):
         raise ValueError("a checkpoint state needs step (within the run), psi and raw_absorbed")
     watch = _Watch(stop, checkpoint_seconds) if (stop or checkpoint_seconds) else None
+    blas = None
     try:
         prop = setup.propagator()
+        # the sampler's reductions (numpy's complex dot products) go to a threaded BLAS
+        # whose idle threads spin: as many as the FFTs use (one by default), so a run
+        # takes no core it does not use (a second run or a sweep's worker may need it)
+        blas = threadpool_limits(prop.fft.threads, user_api="blas")
         if state is not None:
             sampler = Sampler(setup, state["raw_absorbed"], prop.closing_kick)
             step = int(state["step"])
@@ -115,6 +122,9 @@ def evolve(setup, recorder, state: Optional[dict] = None,
     except BaseException:
         recorder.close("failed")
         raise
+    finally:
+        if blas is not None:
+            blas.restore_original_limits()
 
 
 def _non_finite(t: float) -> NonFinite:

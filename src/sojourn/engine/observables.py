@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
+from scipy import fft as sfft
 
 STENCIL_HALF_WIDTH = 8  # 16-point stencils: error ~ (kΔx)^16, negligible for resolved packets
 
@@ -136,8 +137,10 @@ class Detectors:
 
 class BandFilter:
     """The state filtered to the populated band (the window of `band_kernel`)
-    on one window's cells, by a direct convolution with the kernel sampled on
-    the grid (exact for the band, like the detectors' filter; O(cells·kernel))."""
+    on one window's cells: the convolution with the kernel sampled on the grid
+    (exact for the band, like the detectors' filter), done by FFT over the
+    window and the kernel's reach with the kernel's transform kept (five times
+    faster than the direct sum at the sizes a run samples)."""
 
     def __init__(self, grid, where: Window, band: tuple[float, float]):
         k_pass, k_stop = map(float, band)
@@ -149,23 +152,23 @@ class BandFilter:
         cells = where.cells
         self.indices = np.arange(cells.start - m, cells.stop + m) % grid.points  # periodic
         self.local = Window(slice(0, cells.stop - cells.start), where.first, where.last)
+        self._length = sfft.next_fast_len(len(self.indices) + 2 * m)   # no wrap-around
+        self._kernel_k = sfft.fft(self.kernel, self._length)
 
     def probability(self, psi: np.ndarray, dx: float, factor=None) -> float:
         """∫|ψ_band|² dx over the window (of factor·ψ when a factor is given)."""
         part = psi[..., self.indices]
         if factor is not None:
             part = part * factor[..., self.indices]
-        if part.ndim == 1:
-            filtered = np.convolve(part, self.kernel, mode="valid")
-        else:
-            filtered = np.stack([np.convolve(p, self.kernel, mode="valid")
-                                 for p in part.reshape(-1, part.shape[-1])])
-        return probability(filtered, dx, self.local)
+        full = sfft.ifft(sfft.fft(part, self._length, axis=-1) * self._kernel_k, axis=-1,
+                         overwrite_x=True)
+        return probability(full[..., 2 * self.m:len(self.indices)], dx, self.local)
 
 
 def sum_abs2(values: np.ndarray) -> float:
-    """Σ|ψ|², with numpy's own vecdot loop: np.vdot and np.dot call a threaded
-    BLAS that, on a busy machine, makes this reduction a thousand times slower."""
+    """Σ|ψ|² (np.vecdot: a complex one goes to BLAS like np.vdot, whose threads
+    on a busy machine made this reduction a thousand times slower; the run loop
+    holds BLAS to the FFT's threads)."""
     if values.ndim != 1:
         values = values.reshape(-1)
     return float(np.vecdot(values, values).real)
