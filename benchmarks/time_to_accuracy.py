@@ -30,6 +30,7 @@ from dataclasses import replace
 
 import numpy as np
 from scipy.linalg import lapack
+from threadpoolctl import threadpool_limits
 
 from sojourn.build import build
 from sojourn.config.scenario import loads
@@ -158,6 +159,11 @@ def main(argv=None) -> None:
     parser.add_argument("--sojourn-only", action="store_true",
                         help="only sojourn's runs (to set beside a saved Crank–Nicolson run)")
     args = parser.parse_args(argv)
+    with threadpool_limits(1, user_api="blas"):   # both solvers: no idle BLAS thread spinning
+        run(args)
+
+
+def run(args) -> None:
     if args.sojourn_only:
         for target in args.targets:
             print(json.dumps(sojourn_run(args.case, target)), flush=True)
