@@ -258,3 +258,23 @@ def test_verify_sets_the_error_bars_beside_the_requested_accuracy(run_scenario):
         assert result.error is not None and result.error <= 1e-2 * abs(result.delay)
         assert abs(result.delay - expected[method]) <= result.error + 1e-3 * expected[method], \
             (method, result.delay, expected[method], result.error)
+
+
+def test_a_delay_off_its_prediction_by_more_than_the_accuracy_is_warned(run_scenario):
+    # the plan bounds the grid's and the time step's errors, not a method's own: the
+    # report compares each delay with its closed-form packet average (dφ/dk = 2/κ,
+    # Cohen-Tannoudji, Diu, Laloë, Complement H_I; see reflection_predictions) and warns
+    # where the deviation exceeds the requested accuracy
+    from sojourn.measure.delays import beside_accuracy
+    setup, path = run_scenario(STEP.format(points="auto", evolve=", accuracy: 1e-2"))
+    report = measure_delays(path)
+    assert not any("measured against theory" in w for w in report.warnings), report.warnings
+    expected = reflection_predictions(abs(setup.packet.k0), 20.0)
+    off = {m: abs(r.delay / expected[m] - 1) for m, r in report.reflection.measured.items()}
+    least, next_least = sorted(off.values())[:2]
+    target = (least + next_least) / 2            # between the two least deviations
+    beside_accuracy(report, target)
+    warned = [w for w in report.warnings if "measured against theory" in w]
+    assert len(warned) == 1
+    for method, deviation in off.items():
+        assert (f"reflection {method} " in warned[0]) == (deviation > target), method

@@ -67,6 +67,7 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
                              status=rf.status, potential=potential, packet=packet)
         if larmor.is_spinor(rf):
             attach_clock(report, run, rf.scenario(), packet)
+        beside_accuracy(report, rf.scenario().evolve.accuracy)
         return report
     finally:
         for f in opened:
@@ -79,6 +80,20 @@ def _open(source, opened: list):
         opened.append(rf)
         return rf
     return source
+
+
+def beside_accuracy(report: DelayReport, target: Optional[float]) -> None:
+    """Warn where a delay misses its prediction by more than a requested
+    evolve.accuracy: the plan bounds the grid's and the time step's errors, not
+    a method's own (the arrival method's, e.g., PHYSICS §3)."""
+    if target is None:
+        return
+    over = [f"{c.channel} {name} {result.relative:+.1e}" for c in report.channels()
+            for name, result in c.measured.items()
+            if result.relative is not None and abs(result.relative) > target]
+    if over:
+        report.warnings.append(f"measured against theory, above the requested accuracy "
+                               f"{target:g} (relative): {', '.join(over)}")
 
 
 def attach_clock(report: DelayReport, run: ForwardRun, scenario, packet: PacketInfo) -> None:
