@@ -1,4 +1,4 @@
-"""The time-to-accuracy case and its two solvers, shared by the benchmarks.
+"""A reflection-delay case for run_all.py's scheme, precision and snapshot parts.
 
 A Gaussian packet (ħ = m = 1, σ = 20, E₀ = 0.2 V₀) is totally reflected by a
 unit step at x = 0. Its reflection delay is measured two ways, each against its
@@ -25,7 +25,6 @@ from pathlib import Path
 
 import numpy as np
 from scipy import integrate
-from scipy.linalg import lapack
 
 from sojourn.model import packets
 from sojourn.build import build
@@ -162,36 +161,3 @@ def run_sojourn(points: int, dt: float, scheme: str = "strang",
     return Outcome(f"sojourn {scheme} {precision}", points, dt, seconds,
                    centroid_delay(x, psi, t_last),
                    arrival_delay(samples["t"], samples["flux"][:, 0], DETECTOR))
-
-
-def run_crank_nicolson(points: int, dt: float, sample_interval: float = 0.5) -> Outcome:
-    """Crank–Nicolson finite differences, as a user would write it: second-order
-    central differences for ∂²/∂x², Dirichlet walls, (1 + iHΔt/2)ψ' = (1 − iHΔt/2)ψ
-    solved with a tridiagonal LU factored once (LAPACK zgttrf/zgttrs via scipy),
-    using ψ' = 2(1 + iHΔt/2)⁻¹ψ − ψ. Flux at the grid point nearest the detector
-    by a central difference."""
-    left, right = grid_span(points)
-    dx = (right - left) / points
-    x = left + dx * np.arange(points)
-    V = np.where(x > REFERENCE, V0, 0.0)
-    off = np.full(points - 1, -0.5j * dt / (2 * dx * dx))
-    diag = 1 + 0.5j * dt * (1 / (dx * dx) + V)
-    start = time.perf_counter()
-    dl, d, du, du2, ipiv, info = lapack.zgttrf(off.copy(), diag, off.copy())
-    if info:
-        raise ArithmeticError("tridiagonal factorisation failed")
-    psi = packets.gaussian(x, START, SIGMA, K0)
-    psi = psi / math.sqrt(np.vdot(psi, psi).real * dx)
-    steps = int(round(DURATION / dt))
-    every = max(1, int(round(sample_interval / dt)))
-    j = int(round((DETECTOR - left) / dx))
-    times, flux = [0.0], [float((np.conj(psi[j]) * (psi[j + 1] - psi[j - 1])).imag / (2 * dx))]
-    for n in range(1, steps + 1):
-        solved, info = lapack.zgttrs(dl, d, du, du2, ipiv, 2 * psi)[:2]
-        np.subtract(solved, psi, out=psi)
-        if n % every == 0:
-            times.append(n * dt)
-            flux.append(float((np.conj(psi[j]) * (psi[j + 1] - psi[j - 1])).imag / (2 * dx)))
-    seconds = time.perf_counter() - start
-    return Outcome("Crank-Nicolson", points, dt, seconds, centroid_delay(x, psi, steps * dt),
-                   arrival_delay(np.array(times), np.array(flux), x[j]))

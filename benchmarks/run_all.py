@@ -6,7 +6,8 @@ Parts: throughput (against the FFT limit and a hand-written numpy loop),
 accuracy (time to a given delay accuracy against Crank–Nicolson), scheme
 (yoshida4 against strang), precision (single against double), io (share of
 run time spent writing snapshots), memory (peak resident memory of a 2^20-point
-run). --quick uses fewer sizes and a 1e-2 accuracy target instead of 1e-3.
+run). --quick uses fewer sizes and a 1e-2 accuracy target instead of 1e-3
+(the accuracy part is time_to_accuracy.py's comparison on the unit step).
 Nothing here is a test; nothing asserts on time.
 """
 from __future__ import annotations
@@ -23,9 +24,11 @@ import time
 from pathlib import Path
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import cases  # noqa: E402
+import time_to_accuracy  # noqa: E402
 
 from sojourn import bench  # noqa: E402
 from sojourn.build import build  # noqa: E402
@@ -109,72 +112,21 @@ def threads(sizes, budget):
 
 # ----------------------------------------------------------------------- accuracy
 
-def _passes(outcome, reference, tol):
-    return max(outcome.errors(reference)) < tol
-
-
-def _show(o, reference):
-    ec, ea = o.errors(reference)
-    say(f"    {o.solver:<24} N = {o.points:>6}, dt = {o.dt:.4g}: {o.seconds:7.2f} s, "
-        f"centroid error {ec:.2e}, arrival error {ea:.2e}")
-
-
-def cheapest_sojourn(reference, tol, sizes, phases=(6.0, math.pi, math.pi / 2)):
-    """Cheapest (N, Δt inside the grid limit) reaching tol on both delays, trying
-    settings in order of their cost."""
-    ladder = sorted(((n, cases.phase_dt(n, p)) for n in sizes for p in phases),
-                    key=lambda s: s[0] * math.log2(s[0]) / s[1])
-    tried = []
-    for n, dt in ladder:
-        o = cases.run_sojourn(n, dt)
-        tried.append(o)
-        _show(o, reference)
-        if _passes(o, reference, tol):
-            return o, tried
-    return None, tried
-
-
-def cheapest_cn(reference, tol, sizes, ratio=2.5):
-    """Cheapest Crank–Nicolson run reaching tol: up a ladder with Δt = ratio·Δx (its
-    spatial and temporal dispersion errors balanced), then the cheaper neighbours
-    (the previous grid at this Δt, this grid at twice the Δt)."""
-    tried = []
-
-    def dt_for(n):
-        return ratio * (cases.BOX[1] - cases.BOX[0]) / n
-
-    for i, n in enumerate(sizes):
-        o = cases.run_crank_nicolson(n, dt_for(n))
-        tried.append(o)
-        _show(o, reference)
-        if _passes(o, reference, tol):
-            best = o
-            for m, dt in ([(sizes[i - 1], dt_for(n))] if i else []) + [(n, 2 * dt_for(n))]:
-                nb = cases.run_crank_nicolson(m, dt)
-                tried.append(nb)
-                _show(nb, reference)
-                if _passes(nb, reference, tol) and nb.seconds < best.seconds:
-                    best = nb
-            return best, tried
-    return None, tried
-
-
-def accuracy(tol, quick):
-    reference = cases.predictions()
-    say(f"accuracy: reflection delay at E0 = 0.2 V0 to {tol:g} relative; predictions "
-        f"centroid {reference['centroid']:.6f}, arrival {reference['arrival']:.6f} "
-        f"(Wigner delay at E0 {reference['wigner']:.6f})")
-    ours_sizes = (1024, 1536, 2048, 3072, 4096, 6144, 8192, 12288)
-    ours, ours_tried = cheapest_sojourn(reference, tol, ours_sizes)
-    cn_sizes = (16384, 24576, 32768, 49152, 65536, 98304, 131072, 196608, 262144)
-    cn, cn_tried = cheapest_cn(reference, tol, cn_sizes)
-    out = {"tolerance": tol, "predictions": reference,
-           "sojourn": [vars(o) for o in ours_tried], "crank_nicolson": [vars(o) for o in cn_tried]}
-    if ours and cn:
-        out["advantage"] = cn.seconds / ours.seconds
-        say(f"  sojourn reached it in {ours.seconds:.2f} s (N = {ours.points}), Crank–Nicolson in "
-            f"{cn.seconds:.1f} s (N = {cn.points}): {out['advantage']:.0f}x less time")
-    return out, ours
+def accuracy(tol):
+    """sojourn at default settings (`points: auto`, `evolve.accuracy: tol`) against
+    Crank–Nicolson at its best Δx/Δt balance, unit step (time_to_accuracy.py)."""
+    say(f"accuracy: every delay method to {tol:g} relative, unit step")
+    records = []
+    with threadpool_limits(1, user_api="blas"):
+        for record in time_to_accuracy.compare("step", [tol]):
+            records.append(record)
+            if "solver" in record:
+                say(f"    {record['solver']:<16} N = {record['points']:>6}, dt = {record['dt']:.4g}: "
+                    f"{record['seconds']:7.2f} s, worst error {record['error']:.2e}")
+            elif "ratio" in record:
+                say(f"  Crank–Nicolson {'reached' if record['cn_reached'] else 'missed'} it in "
+                    f"{record['ratio']:.1f}x sojourn's time (CPU {record['cpu_ratio']:.1f}x)")
+    return records
 
 
 def scheme(base_points, quick):
@@ -333,18 +285,16 @@ def main(argv=None) -> int:
     results = {"machine": machine(), "quick": args.quick}
     say(f"machine: {results['machine']['cores']} cores, {results['machine']['cpu']}")
     sizes = (1 << 10, 1 << 12, 1 << 14, 1 << 16, 1 << 18) if args.quick else bench.FULL_SIZES
-    ours = None
     if "throughput" in parts:
         results["throughput"] = throughput(sizes, 1.0 if args.quick else 3.0)
     if "threads" in parts:
         results["threads"] = threads((1 << 16, 1 << 18), 1.0 if args.quick else 3.0)
     if "accuracy" in parts:
-        results["accuracy"], ours = accuracy(1e-2 if args.quick else 1e-3, args.quick)
+        results["accuracy"] = accuracy(1e-2 if args.quick else 1e-3)
     if "scheme" in parts:
         results["scheme"] = scheme(1024, args.quick)
     if "precision" in parts:
-        points, dt = (ours.points, ours.dt) if ours else (2048, cases.phase_dt(2048, 6.0))
-        results["precision"] = precision(points, dt)
+        results["precision"] = precision(2048, cases.phase_dt(2048, 6.0))
     if "io" in parts:
         results["io"] = io_share(1 << 14, 10000)
     if "memory" in parts:

@@ -168,27 +168,34 @@ def run(args) -> None:
         for target in args.targets:
             print(json.dumps(sojourn_run(args.case, target)), flush=True)
         return
+    for record in compare(args.case, args.targets, args.max_cn_tries, args.calibrate):
+        print(json.dumps(record), flush=True)
+
+
+def compare(case: str, targets, max_cn_tries: int = 4, calibrate=None):
+    """The records of one comparison, as they come: Crank–Nicolson's calibration and
+    model, then per target sojourn's run, Crank–Nicolson's tries and the ratio."""
     defaults = {"step": (8192, 0.05), "heterojunction": (4096, 0.5)}
-    points0, dt0 = args.calibrate or defaults[args.case]
-    a, b, runs = fit_crank_nicolson(args.case, int(points0), float(dt0))
+    points0, dt0 = calibrate or defaults[case]
+    a, b, runs = fit_crank_nicolson(case, int(points0), float(dt0))
     for r in runs:
-        print(json.dumps({**r, "role": "calibration"}), flush=True)
-    print(json.dumps({"case": args.case, "cn_model": {"a": a, "b": b}}), flush=True)
-    for target in args.targets:
-        ours = sojourn_run(args.case, target)
-        print(json.dumps(ours), flush=True)
+        yield {**r, "role": "calibration"}
+    yield {"case": case, "cn_model": {"a": a, "b": b}}
+    for target in targets:
+        ours = sojourn_run(case, target)
+        yield ours
         points, dt = crank_nicolson_best(target, a, b, dt0)
-        for _ in range(args.max_cn_tries):
-            theirs = crank_nicolson_run(args.case, points, dt)
-            print(json.dumps({**theirs, "target": target}), flush=True)
+        for _ in range(max_cn_tries):
+            theirs = crank_nicolson_run(case, points, dt)
+            yield {**theirs, "target": target}
             if theirs["error"] <= target:
                 break
             points, dt = int(points * 2 ** 0.25), dt / 2 ** 0.25
-        print(json.dumps({"case": args.case, "target": target,
-                          "sojourn_error": ours["error"], "cn_error": theirs["error"],
-                          "cn_reached": theirs["error"] <= target,
-                          "ratio": theirs["seconds"] / ours["seconds"],
-                          "cpu_ratio": theirs["cpu"] / ours["cpu"]}), flush=True)
+        yield {"case": case, "target": target,
+               "sojourn_error": ours["error"], "cn_error": theirs["error"],
+               "cn_reached": theirs["error"] <= target,
+               "ratio": theirs["seconds"] / ours["seconds"],
+               "cpu_ratio": theirs["cpu"] / ours["cpu"]}
 
 
 if __name__ == "__main__":
