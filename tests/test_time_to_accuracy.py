@@ -268,7 +268,10 @@ def test_a_delay_off_its_prediction_by_more_than_the_accuracy_is_warned(run_scen
     from sojourn.measure.delays import beside_accuracy
     setup, path = run_scenario(STEP.format(points="auto", evolve=", accuracy: 1e-2"))
     report = measure_delays(path)
-    assert not any("measured against theory" in w for w in report.warnings), report.warnings
+    # nothing at all is warned of at the settings the tool chose itself (the time step's
+    # bias is within what was asked; the reflected packet, partly in the absorber at the
+    # end, is judged for out-of-band content at its last clear snapshot)
+    assert not report.warnings, report.warnings
     expected = reflection_predictions(abs(setup.packet.k0), 20.0)
     off = {m: abs(r.delay / expected[m] - 1) for m, r in report.reflection.measured.items()}
     least, next_least = sorted(off.values())[:2]

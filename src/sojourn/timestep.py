@@ -190,7 +190,6 @@ def sideband_share(info, V, dx, support, x_left, hbar, mass, dt, widest: float =
     return SIDEBAND_SHARE * (h * widest * dt / hbar) ** 2
 
 
-
 def sinks(grid, info, V, hbar, mass, dt, sinkable: bool = True) -> bool:
     """Whether the run's sidebands are harmless: none fits on the grid, or the
     sink takes them (there is room for it above the band)."""

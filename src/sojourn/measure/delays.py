@@ -63,11 +63,13 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
         else:
             prediction, why = predictions(potential, packet, run.hbar, run.mass, rf.reference,
                                           run.region)
+        accuracy = rf.scenario().evolve.accuracy
         report = measure_run(run, ref, prediction, why, path=str(rf.path), units=rf.units,
-                             status=rf.status, potential=potential, packet=packet)
+                             status=rf.status, potential=potential, packet=packet,
+                             accuracy=accuracy)
         if larmor.is_spinor(rf):
             attach_clock(report, run, rf.scenario(), packet)
-        beside_accuracy(report, rf.scenario().evolve.accuracy)
+        beside_accuracy(report, accuracy)
         return report
     finally:
         for f in opened:
@@ -114,11 +116,12 @@ def attach_clock(report: DelayReport, run: ForwardRun, scenario, packet: PacketI
 
 def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Optional[str], *,
                 path: str, units: dict, status: str, potential=None,
-                packet: Optional[PacketInfo] = None) -> DelayReport:
+                packet: Optional[PacketInfo] = None,
+                accuracy: Optional[float] = None) -> DelayReport:
     """The report of a run in the forward frame, given theory's prediction
     (None, with the reason `why`, when there is none). A driven `potential`
     (with the run's signed `packet`) gets each channel's sidebands instead of
-    phase-delay predictions."""
+    phase-delay predictions; `accuracy` is the requested evolve.accuracy."""
     warnings = health.before_measuring(run, status)
     stats = snapshot_stats(run)
     channels, notes = {}, []
@@ -164,7 +167,7 @@ def measure_run(run: ForwardRun, ref: Optional[ForwardRun], prediction, why: Opt
                         "in the region when the run ended, or there at its start?")
     shifts = _sideband_shifts(potential, run.hbar) if driven else (0.0,)
     warnings += health.after_measuring(run, stats, channels["reflection"],
-                                       channels["transmission"], shifts)
+                                       channels["transmission"], shifts, accuracy)
     return DelayReport(path, units, channels["reflection"], channels["transmission"], dwell,
                        warnings, run.info.energy, notes)
 

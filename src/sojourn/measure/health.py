@@ -13,7 +13,7 @@ import numpy as np
 from ..theory.averages import ABOVE_TOP_WARN, share_above_top as theory_share
 from .. import timestep
 from ..engine.propagate import SCHEMES
-from .frame import K_SPAN, ForwardRun
+from .frame import K_SPAN, ForwardRun, separated
 from .report import ChannelReport
 
 OUT_OF_BAND_WARN = 1e-6  # probability outside the packet's k-band that calls for a warning
@@ -30,10 +30,14 @@ def spurious_share(run: ForwardRun) -> float:
                                    run.hbar, run.mass, run.dt, _scheme(run).widest)
 
 
+def _attrs(run: ForwardRun) -> dict:
+    """The run file's root attributes ({} for a run held in memory without them)."""
+    return getattr(run.states, "attrs", None) or {}
+
+
 def _scheme(run: ForwardRun):
     """The run's splitting scheme (Strang where the run file does not say)."""
-    attrs = getattr(run.states, "attrs", None) or {}
-    return SCHEMES.get(str(attrs.get("scheme", "strang")), SCHEMES["strang"])
+    return SCHEMES.get(str(_attrs(run).get("scheme", "strang")), SCHEMES["strang"])
 
 
 def channel_floor(run: ForwardRun, closed: bool) -> float:
@@ -86,9 +90,12 @@ def share_above_top(run: ForwardRun) -> tuple[float, float]:
 
 
 def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelReport],
-                    transmission: Optional[ChannelReport], shifts=(0.0,)) -> list:
+                    transmission: Optional[ChannelReport], shifts=(0.0,),
+                    accuracy: Optional[float] = None) -> list:
     """Warnings about the run as a whole, after the channels were measured;
-    `shifts` are the energies a drive's sidebands move the band by (n·ħω)."""
+    `shifts` are the energies a drive's sidebands move the band by (n·ħω);
+    `accuracy` the requested evolve.accuracy (a time-step bias within it is
+    what the run asked for)."""
     warnings = []
     info, hbar, m = run.info, run.hbar, run.mass
     share, top = share_above_top(run)
@@ -107,8 +114,11 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
         if edge > LOST_WARN:
             warnings.append(f"up to {edge:.2g} of the probability reached the box edge: it wraps "
                             "around the periodic box; enlarge the box or add an absorber")
-    # probability outside the packet's k-band (spurious high-k components)
-    psi = run.psi(len(run.times) - 1)
+    # probability outside the packet's k-band (spurious high-k components), at the latest
+    # snapshot where the outgoing packets are clear of the potential and the absorbers: a
+    # packet partly absorbed has a spectrum the absorbing ramp has widened
+    clear = separated(run, stats, "reflection") | separated(run, stats, "transmission")
+    psi = run.psi(int(np.nonzero(clear)[0][-1]) if clear.any() else len(run.times) - 1)
     spectrum = np.abs(np.fft.fft(psi, axis=-1)) ** 2
     spectrum = spectrum.reshape(-1, spectrum.shape[-1]).sum(axis=0)   # spin components add
     kgrid = np.abs(2 * math.pi * np.fft.fftfreq(psi.shape[-1], d=run.dx))
@@ -132,10 +142,10 @@ def after_measuring(run: ForwardRun, stats: dict, reflection: Optional[ChannelRe
     if phase > math.pi:
         h = timestep.sharpness(run.V, run.dx, (run.x_r, run.x_t), float(run.x[0]), 0.0)
         scheme = _scheme(run)
-        sunk = "sideband_sink" in (getattr(run.states, "attrs", None) or {}) or timestep.sideband_wavenumber(
-            info, run.V, hbar, m, run.dt) >= math.pi / run.dx
+        sunk = ("sideband_sink" in _attrs(run)
+                or timestep.sideband_wavenumber(info, run.V, hbar, m, run.dt) >= math.pi / run.dx)
         bias = timestep.time_error(h, run.dt * scheme.widest, hbar, scheme.order, sunk)
-        if bias > TIME_BIAS_WARN:
+        if bias > max(TIME_BIAS_WARN, accuracy or 0.0):
             warnings.append(f"the time step is large for the potential's sharp features: "
                             f"Δt·(E_max + ΔV)/ħ = {phase:.3g} > π, and the spurious high-k "
                             f"components they feed bias delays by about {bias:.1e} (relative)")
