@@ -12,7 +12,7 @@ import pytest
 
 from sojourn import cli, render
 from sojourn.config.scenario import loads
-from sojourn.render.channels import thin_span, transmission_ruler, transmitted_packet
+from sojourn.render.channels import thin_span, transmitted_packet
 from sojourn.store import RunFile
 from sojourn.sweep.table import key_label
 from sojourn.theory.averages import packet_prediction

@@ -12,7 +12,7 @@ import pytest
 from sojourn.build import build
 from sojourn.config.scenario import load
 from sojourn.errors import RunFileError
-from sojourn.store import RunFile, RunWriter, partial_path, save_analysis
+from sojourn.store import RunFile, partial_path, save_analysis
 from sojourn.store import writer as writer_module
 from sojourn.workflows import run as execute
 from scenarios import tiny_step

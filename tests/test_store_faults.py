@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import os
 import resource
-import signal
 import stat
 import subprocess
 import sys
@@ -19,7 +18,7 @@ from sojourn.build import build
 from sojourn.cli import main
 from sojourn.config.scenario import load
 from sojourn.errors import RunFileError
-from sojourn.store import RunFile, RunWriter, folder_lock, lock_path, partial_path
+from sojourn.store import RunFile, folder_lock, lock_path, partial_path
 from sojourn.errors import SweepError
 from sojourn.workflows import run as execute
 

@@ -2,12 +2,15 @@
 probability, norm and absorption (sampled), and the moments (recorded)."""
 from __future__ import annotations
 
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
 
 from . import observables as obs
 from .fft import FFTPair
+
+if TYPE_CHECKING:
+    from ..build import Setup
 
 
 def _runs(indices: np.ndarray) -> list:

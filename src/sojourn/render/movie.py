@@ -24,7 +24,6 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Polygon
 
 from ..errors import RenderError
-from ..store import RunFile
 from ..engine.propagate import TimeDependence
 from .facts import RunFacts, open_run, run_facts, time_format, window
 from .frames import frame_times, propagated_states
