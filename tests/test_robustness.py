@@ -394,3 +394,18 @@ def test_the_superblock_checksum_matches_hdf5s_own(run_scenario):
     foreign.write_bytes(b"plain text, not HDF5 at all, long enough for a superblock" * 2)
     before = foreign.read_bytes()
     assert not clear_write_flags(foreign) and foreign.read_bytes() == before
+
+
+# found by the long fuzzing profile (tests/test_fuzz_*.py, pytest -m slow)
+def test_a_nul_character_in_an_argument_is_a_one_line_error(capsys):
+    assert main(["run", "\x00"]) == 2
+    err = capsys.readouterr().err
+    assert "NUL" in err and "Traceback" not in err and err.count("\n") == 1
+
+
+def test_a_refused_integer_names_its_key(tmp_path, capsys):
+    path = tmp_path / "s.yaml"
+    path.write_text("units: atomic\nlarmor:\n  omega: 001\n")
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert f"{path}:3: larmor.omega: '001' is not a plain integer" in err

@@ -408,6 +408,9 @@ def main(argv=None) -> int:
     end = argv.index("--") if "--" in argv else len(argv)
     debug = "--debug" in argv[:end]
     argv = [a for i, a in enumerate(argv) if not (a == "--debug" and i < end)]
+    if any("\x00" in a for a in argv):   # no path or value can hold one (the OS refuses it)
+        _warn("error: an argument holds a NUL character (\\x00): no file name can")
+        return EXIT_INPUT
     try:
         args = build_parser().parse_args(argv)
         if not getattr(args, "func", None):

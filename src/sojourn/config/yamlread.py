@@ -50,18 +50,19 @@ def _check_node(node, path, lines, seen, counter) -> None:
     line = node.start_mark.line + 1
     if counter[0] > MAX_NODES:
         raise _Refused(line, f"more than {MAX_NODES} YAML items; a scenario is far smaller")
+    at = f"{format_path(path)}: "      # the key the refused value belongs to
     if isinstance(node, yaml.ScalarNode):
         implicit = _CoreLoader.resolve(_CoreLoader, yaml.ScalarNode, node.value, (True, False))
         if node.tag != implicit and not (node.style and node.tag == "tag:yaml.org,2002:str"):
-            raise _Refused(line, f"explicit YAML tags ({node.tag.replace('tag:yaml.org,2002:', '!!')})"
+            raise _Refused(line, f"{at}explicit YAML tags ({node.tag.replace('tag:yaml.org,2002:', '!!')})"
                                  " are not accepted: write the plain value")
         if node.tag == "tag:yaml.org,2002:int" and not _INT.match(node.value):
-            raise _Refused(line, f"{node.value!r} is not a plain integer")
+            raise _Refused(line, f"{at}{node.value!r} is not a plain integer")
         if node.tag == "tag:yaml.org,2002:int" and len(node.value) > 400:
-            raise _Refused(line, "an integer of more than 400 digits")
+            raise _Refused(line, f"{at}an integer of more than 400 digits")
     elif isinstance(node, yaml.MappingNode):
         if node.tag not in ("tag:yaml.org,2002:map",):
-            raise _Refused(line, "explicit YAML tags are not accepted: write a plain mapping")
+            raise _Refused(line, f"{at}explicit YAML tags are not accepted: write a plain mapping")
         keys = set()
         for key_node, value_node in node.value:
             key = key_node.value
@@ -75,7 +76,7 @@ def _check_node(node, path, lines, seen, counter) -> None:
             _check_node(value_node, path + (key,), lines, seen, counter)
     elif isinstance(node, yaml.SequenceNode):
         if node.tag not in ("tag:yaml.org,2002:seq",):
-            raise _Refused(line, "explicit YAML tags are not accepted: write a plain list")
+            raise _Refused(line, f"{at}explicit YAML tags are not accepted: write a plain list")
         for i, item in enumerate(node.value):
             lines[path + (i,)] = item.start_mark.line + 1
             _check_node(item, path + (i,), lines, seen, counter)
