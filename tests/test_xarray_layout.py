@@ -3,7 +3,6 @@ with named coordinates and units (netCDF-4 dimension scales), and a sweep's
 table.csv reads with pandas."""
 from __future__ import annotations
 
-
 import numpy as np
 import pandas as pd
 import pytest

@@ -48,7 +48,8 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
             if angular.is_obstacle_run(rf):   # off one disk or ring: per direction
                 return angular.obstacle_report(rf)
             return measure_plane(rf, measure_run)
-        potential = rf.scenario().build_potential()
+        scenario = rf.scenario()
+        potential = scenario.build_potential()
         run = ForwardRun.from_runfile(rf, potential)
         ref = None
         if reference_run is not None:
@@ -63,12 +64,12 @@ def measure_delays(runfile_or_path, reference_run=None) -> DelayReport:
         else:
             prediction, why = predictions(potential, packet, run.hbar, run.mass, rf.reference,
                                           run.region)
-        accuracy = rf.scenario().evolve.accuracy
+        accuracy = scenario.evolve.accuracy
         report = measure_run(run, ref, prediction, why, path=str(rf.path), units=rf.units,
                              status=rf.status, potential=potential, packet=packet,
                              accuracy=accuracy)
         if larmor.is_spinor(rf):
-            attach_clock(report, run, rf.scenario(), packet)
+            attach_clock(report, run, scenario, packet)
         beside_accuracy(report, accuracy)
         return report
     finally:
